@@ -1,0 +1,240 @@
+package models
+
+import (
+	"fmt"
+	"slices"
+	"strings"
+)
+
+// Recommender ranks next items for a session.
+type Recommender interface {
+	// Recommend appends to dst the k best items for q for which skip is
+	// false (skip may be nil), best first.
+	Recommend(q *Query, k int, skip func(ItemID) bool, dst []Scored) []Scored
+}
+
+// AsRecommender ranks a single model's own candidates, with no fallback, so
+// a baseline is exactly what its name says.
+func AsRecommender(m Model) Recommender {
+	if r, ok := m.(Recommender); ok {
+		return r
+	}
+	return single{m}
+}
+
+type single struct{ m Model }
+
+func (s single) Recommend(q *Query, k int, skip func(ItemID) bool, dst []Scored) []Scored {
+	out := make(Scores)
+	s.m.Candidates(q, out)
+	return TopK(dst, out, k, skip)
+}
+
+// Signal is one model inside a blend.
+type Signal struct {
+	Name   string // feature name, for example "sr"
+	Model  Model
+	Weight float64
+}
+
+// Blend combines signals: each signal's scores for a query are divided by
+// that signal's best score, so every feature lies in [0, 1], and the blended
+// score is the weighted sum of the features. Popularity takes part as one
+// more signal with a small weight and fills the list when the others have
+// too few candidates; when no other signal has any (an empty session, or
+// only unknown items) the answer comes from popularity alone.
+type Blend struct {
+	signals []Signal
+	pop     *Pop
+	popW    float64
+}
+
+// DefaultPopWeight is popularity's weight in the default blend: enough to
+// order otherwise tied candidates and to fill short lists, too small to
+// outvote a session's own evidence.
+const DefaultPopWeight = 0.1
+
+// NewBlend returns a blend of signals over a popularity model.
+func NewBlend(pop *Pop, popWeight float64, signals ...Signal) *Blend {
+	return &Blend{signals: signals, pop: pop, popW: popWeight}
+}
+
+// Name lists the blend's parts and weights.
+func (b *Blend) Name() string {
+	parts := make([]string, 0, len(b.signals)+1)
+	for _, s := range b.signals {
+		parts = append(parts, fmt.Sprintf("%s=%g", s.Name, s.Weight))
+	}
+	parts = append(parts, fmt.Sprintf("pop=%g", b.popW))
+	return "blend(" + strings.Join(parts, ",") + ")"
+}
+
+// Signals returns the feature names in the order features are reported,
+// popularity last.
+func (b *Blend) Signals() []string {
+	names := make([]string, 0, len(b.signals)+1)
+	for _, s := range b.signals {
+		names = append(names, s.Name)
+	}
+	return append(names, "pop")
+}
+
+// Observe does nothing: a blend learns through its parts, which the
+// pipeline feeds once each.
+func (b *Blend) Observe(*Observation) {}
+
+// Candidates adds blended scores of every signal's candidates and the top
+// popular items.
+func (b *Blend) Candidates(q *Query, out Scores) {
+	b.blend(q, popTopN, out, nil)
+}
+
+// ScoreItems writes the blended score of each item.
+func (b *Blend) ScoreItems(q *Query, items []ItemID, out []float64) {
+	rows := b.Score(q, items)
+	for i := range rows {
+		out[i] = rows[i].Score
+	}
+}
+
+// blend fills out with blended scores; when feats is non-nil it also keeps
+// each candidate's features, indexed like Signals. It reports whether any
+// signal other than popularity had candidates.
+func (b *Blend) blend(q *Query, popN int, out Scores, feats map[ItemID][]float64) bool {
+	nf := len(b.signals) + 1
+	collab := false
+	part := make(Scores)
+	for si, s := range b.signals {
+		clear(part)
+		s.Model.Candidates(q, part)
+		mx := maxScore(part)
+		if mx <= 0 {
+			continue
+		}
+		collab = true
+		for id, v := range part {
+			f := v / mx
+			out[id] += s.Weight * f
+			if feats != nil {
+				fv := feats[id]
+				if fv == nil {
+					fv = make([]float64, nf)
+					feats[id] = fv
+				}
+				fv[si] = f
+			}
+		}
+	}
+	top := b.pop.Top(popN)
+	if len(top) == 0 {
+		return collab
+	}
+	mx := b.pop.Count(top[0])
+	addPop := func(id ItemID) {
+		f := b.pop.Count(id) / mx
+		out[id] += b.popW * f
+		if feats != nil {
+			fv := feats[id]
+			if fv == nil {
+				fv = make([]float64, nf)
+				feats[id] = fv
+			}
+			fv[nf-1] = f
+		}
+	}
+	// Popularity as a feature of every candidate the others found...
+	for id := range out {
+		addPop(id)
+	}
+	// ...and as a source of candidates to fill the list.
+	for _, id := range top {
+		if _, ok := out[id]; !ok {
+			addPop(id)
+		}
+	}
+	return collab
+}
+
+func maxScore(s Scores) float64 {
+	mx := 0.0
+	for _, v := range s {
+		if v > mx {
+			mx = v
+		}
+	}
+	return mx
+}
+
+// Result is a ranked answer with per-signal features.
+type Result struct {
+	Items    []Scored
+	Features [][]float64 // per item, indexed like Signals
+	// Fallback is true when only popularity answered.
+	Fallback bool
+}
+
+// Recommend ranks the k best items for q, skipping items for which skip is
+// true.
+func (b *Blend) Recommend(q *Query, k int, skip func(ItemID) bool, dst []Scored) []Scored {
+	out := make(Scores)
+	b.blend(q, k+len(q.Session), out, nil)
+	return TopK(dst, out, k, skip)
+}
+
+// Explain is Recommend with each item's features.
+func (b *Blend) Explain(q *Query, k int, skip func(ItemID) bool) Result {
+	out := make(Scores)
+	feats := make(map[ItemID][]float64)
+	collab := b.blend(q, k+len(q.Session), out, feats)
+	items := TopK(nil, out, k, skip)
+	res := Result{Items: items, Fallback: !collab, Features: make([][]float64, len(items))}
+	for i, it := range items {
+		res.Features[i] = feats[it.Item]
+	}
+	return res
+}
+
+// ScoreRow is one caller-supplied candidate's blended score and features.
+type ScoreRow struct {
+	Score    float64
+	Features []float64
+}
+
+// Score computes the blended score and features of each given candidate, in
+// the order given. Features are normalised exactly as in Recommend, so the
+// two answers agree.
+func (b *Blend) Score(q *Query, items []ItemID) []ScoreRow {
+	nf := len(b.signals) + 1
+	rows := make([]ScoreRow, len(items))
+	raw := make([]float64, len(items))
+	part := make(Scores)
+	for i := range rows {
+		rows[i].Features = make([]float64, nf)
+	}
+	for si, s := range b.signals {
+		clear(part)
+		s.Model.Candidates(q, part)
+		mx := maxScore(part)
+		s.Model.ScoreItems(q, items, raw)
+		// A signal may score items it would not propose; keep features
+		// within [0, 1] all the same.
+		mx = max(mx, slices.Max(append(raw[:len(raw):len(raw)], 0)))
+		if mx <= 0 {
+			continue
+		}
+		for i, v := range raw {
+			f := v / mx
+			rows[i].Features[si] = f
+			rows[i].Score += s.Weight * f
+		}
+	}
+	if top := b.pop.Top(1); len(top) == 1 {
+		mx := b.pop.Count(top[0])
+		for i, id := range items {
+			f := b.pop.Count(id) / mx
+			rows[i].Features[nf-1] = f
+			rows[i].Score += b.popW * f
+		}
+	}
+	return rows
+}

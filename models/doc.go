@@ -1,0 +1,26 @@
+// Package models holds the next-item recommenders waymark learns from the click
+// stream and the blend that combines them.
+//
+// Every model implements [Model]: it observes clicks one at a time, in event
+// time, and proposes scored candidates for a session. The same values serve
+// live queries and offline replay, so a model must be a deterministic function
+// of the clicks it observed, in the order it observed them.
+//
+// # Decay
+//
+// All counts decay exponentially in event time with a half-life H:
+// w(t) = w(t0) · 2^(-(t-t0)/H). Rather than touching every count as time
+// passes, a count is kept in landmark form: a click at time t adds
+// 2^((t-ref)/H), where ref is a fixed reference time shared by all models of
+// one pipeline. The decayed value at time T is the stored value times
+// 2^(-(T-ref)/H), a factor common to every count, so rankings and ratios such
+// as cosine similarity can be read straight from the stored values. Stored
+// values only grow, which also makes incremental top-N lists exact.
+//
+// # Persistence
+//
+// Models never touch the disk. A model that keeps state implements
+// [Persistent]: it writes what changed since its last flush into a [KV] the
+// caller provides (one Badger transaction in serve) and reloads entries under
+// its prefix at start.
+package models

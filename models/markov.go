@@ -1,0 +1,50 @@
+package models
+
+// Markov is a first-order transition model: it counts a→b for consecutive
+// clicks and scores candidates from the session's last item.
+type Markov struct {
+	trans  *pairTable
+	prefix string
+}
+
+// NewMarkov returns a transition model keeping at most capPerItem successors
+// per item (0 keeps all).
+func NewMarkov(capPerItem int) *Markov {
+	return &Markov{trans: newPairTable(capPerItem)}
+}
+
+func (m *Markov) Name() string { return "markov" }
+
+func (m *Markov) Observe(o *Observation) {
+	if o.Repeat || len(o.Window) == 0 {
+		return
+	}
+	m.trans.add(o.Window[len(o.Window)-1].Item, o.Item, o.Weight)
+}
+
+func (m *Markov) Candidates(q *Query, out Scores) {
+	last, ok := q.Last()
+	if !ok {
+		return
+	}
+	m.trans.each(last, func(b ItemID, w float64) { out[b] += w })
+}
+
+func (m *Markov) ScoreItems(q *Query, items []ItemID, out []float64) {
+	last, ok := q.Last()
+	for i, id := range items {
+		out[i] = 0
+		if ok {
+			out[i] = m.trans.get(last, id)
+		}
+	}
+}
+
+// Pairs returns the number of transitions held, for memory accounting.
+func (m *Markov) Pairs() int { return m.trans.size() }
+
+func (m *Markov) SetPrefix(prefix string)    { m.prefix = prefix }
+func (m *Markov) Prefix() string             { return m.prefix }
+func (m *Markov) Flush(kv KV) error          { return m.trans.flush(kv, m.prefix) }
+func (m *Markov) Load(key, val []byte) error { return m.trans.load(key[len(m.prefix):], val) }
+func (m *Markov) Rescale(f float64)          { m.trans.rescale(f) }

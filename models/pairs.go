@@ -1,0 +1,234 @@
+package models
+
+import (
+	"encoding/binary"
+	"fmt"
+	"math"
+	"slices"
+)
+
+// pairTable holds weighted item→item pairs, one row per source item. A row
+// is capped: when it grows past twice its cap it is cut back to the cap
+// heaviest entries. Cutting at a size that depends only on the clicks seen
+// keeps the table a deterministic function of the stream, whenever flushes
+// happen.
+type pairTable struct {
+	rows  []pairRow
+	cap   int
+	dirty []ItemID // rows changed since the last flush
+}
+
+type pairRow struct {
+	m     map[ItemID]float64
+	dirty bool
+}
+
+func newPairTable(capPerRow int) *pairTable {
+	return &pairTable{cap: capPerRow}
+}
+
+func (t *pairTable) row(a ItemID) *pairRow {
+	if int(a) >= len(t.rows) {
+		t.rows = slices.Grow(t.rows, int(a)+1-len(t.rows))
+		t.rows = t.rows[:int(a)+1]
+	}
+	return &t.rows[a]
+}
+
+// add adds w to the pair a→b.
+func (t *pairTable) add(a, b ItemID, w float64) {
+	r := t.row(a)
+	if r.m == nil {
+		r.m = make(map[ItemID]float64, 4)
+	}
+	r.m[b] += w
+	if !r.dirty {
+		r.dirty = true
+		t.dirty = append(t.dirty, a)
+	}
+	if t.cap > 0 && len(r.m) > 2*t.cap {
+		prune(r.m, t.cap)
+	}
+}
+
+// get returns the weight of a→b.
+func (t *pairTable) get(a, b ItemID) float64 {
+	if int(a) >= len(t.rows) {
+		return 0
+	}
+	return t.rows[a].m[b]
+}
+
+// each calls f for every pair of row a, in no particular order.
+func (t *pairTable) each(a ItemID, f func(b ItemID, w float64)) {
+	if int(a) >= len(t.rows) {
+		return
+	}
+	for b, w := range t.rows[a].m {
+		f(b, w)
+	}
+}
+
+// size returns the number of pairs held.
+func (t *pairTable) size() int {
+	n := 0
+	for i := range t.rows {
+		n += len(t.rows[i].m)
+	}
+	return n
+}
+
+// prune keeps the n heaviest entries of m, breaking ties by lower id.
+func prune(m map[ItemID]float64, n int) {
+	type kv struct {
+		k ItemID
+		v float64
+	}
+	all := make([]kv, 0, len(m))
+	for k, v := range m {
+		all = append(all, kv{k, v})
+	}
+	slices.SortFunc(all, func(a, b kv) int {
+		switch {
+		case a.v > b.v:
+			return -1
+		case a.v < b.v:
+			return 1
+		case a.k < b.k:
+			return -1
+		case a.k > b.k:
+			return 1
+		}
+		return 0
+	})
+	for _, e := range all[n:] {
+		delete(m, e.k)
+	}
+}
+
+// flush writes each dirty row under prefix+bigEndian(src) as a sorted list
+// of (dst uint32, weight float64) pairs.
+func (t *pairTable) flush(kv KV, prefix string) error {
+	var buf []byte
+	for _, a := range t.dirty {
+		r := &t.rows[a]
+		r.dirty = false
+		keys := make([]ItemID, 0, len(r.m))
+		for k := range r.m {
+			keys = append(keys, k)
+		}
+		slices.Sort(keys)
+		buf = make([]byte, 0, 12*len(keys))
+		for _, k := range keys {
+			buf = binary.BigEndian.AppendUint32(buf, k)
+			buf = binary.BigEndian.AppendUint64(buf, math.Float64bits(r.m[k]))
+		}
+		if err := kv.Set(itemKey(prefix, a), buf); err != nil {
+			return fmt.Errorf("flush row %d: %w", a, err)
+		}
+	}
+	t.dirty = t.dirty[:0]
+	return nil
+}
+
+// load restores one row written by flush; key has the prefix removed.
+func (t *pairTable) load(key, val []byte) error {
+	if len(key) != 4 || len(val)%12 != 0 {
+		return fmt.Errorf("%w: pair row key %x, %d value bytes", ErrCorrupt, key, len(val))
+	}
+	a := binary.BigEndian.Uint32(key)
+	r := t.row(a)
+	r.m = make(map[ItemID]float64, len(val)/12)
+	for i := 0; i < len(val); i += 12 {
+		r.m[binary.BigEndian.Uint32(val[i:])] = math.Float64frombits(binary.BigEndian.Uint64(val[i+4:]))
+	}
+	return nil
+}
+
+// rescale multiplies every weight by f.
+func (t *pairTable) rescale(f float64) {
+	for a := range t.rows {
+		r := &t.rows[a]
+		if len(r.m) == 0 {
+			continue
+		}
+		for k, v := range r.m {
+			r.m[k] = v * f
+		}
+		if !r.dirty {
+			r.dirty = true
+			t.dirty = append(t.dirty, ItemID(a))
+		}
+	}
+}
+
+// itemKey returns prefix followed by the big-endian id.
+func itemKey(prefix string, id ItemID) []byte {
+	k := make([]byte, 0, len(prefix)+4)
+	k = append(k, prefix...)
+	return binary.BigEndian.AppendUint32(k, id)
+}
+
+// vector is a dense per-item float64 column with dirty tracking.
+type vector struct {
+	v     []float64
+	flag  []bool
+	dirty []ItemID
+}
+
+func (c *vector) add(id ItemID, w float64) {
+	if int(id) >= len(c.v) {
+		n := int(id) + 1
+		c.v = append(c.v, make([]float64, n-len(c.v))...)
+		c.flag = append(c.flag, make([]bool, n-len(c.flag))...)
+	}
+	c.v[id] += w
+	if !c.flag[id] {
+		c.flag[id] = true
+		c.dirty = append(c.dirty, id)
+	}
+}
+
+func (c *vector) get(id ItemID) float64 {
+	if int(id) >= len(c.v) {
+		return 0
+	}
+	return c.v[id]
+}
+
+func (c *vector) flush(kv KV, prefix string) error {
+	for _, id := range c.dirty {
+		c.flag[id] = false
+		var b [8]byte
+		binary.BigEndian.PutUint64(b[:], math.Float64bits(c.v[id]))
+		if err := kv.Set(itemKey(prefix, id), b[:]); err != nil {
+			return fmt.Errorf("flush value %d: %w", id, err)
+		}
+	}
+	c.dirty = c.dirty[:0]
+	return nil
+}
+
+func (c *vector) load(key, val []byte) error {
+	if len(key) != 4 || len(val) != 8 {
+		return fmt.Errorf("%w: value key %x, %d value bytes", ErrCorrupt, key, len(val))
+	}
+	id := binary.BigEndian.Uint32(key)
+	c.add(id, math.Float64frombits(binary.BigEndian.Uint64(val)))
+	c.flag[id] = false
+	c.dirty = c.dirty[:0]
+	return nil
+}
+
+func (c *vector) rescale(f float64) {
+	for id := range c.v {
+		if c.v[id] == 0 {
+			continue
+		}
+		c.v[id] *= f
+		if !c.flag[id] {
+			c.flag[id] = true
+			c.dirty = append(c.dirty, ItemID(id))
+		}
+	}
+}

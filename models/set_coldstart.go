@@ -1,0 +1,4 @@
+package models
+
+// registerColdStart adds the cold-start models' builders to the set.
+func (s *Set) registerColdStart() {}

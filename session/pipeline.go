@@ -1,0 +1,273 @@
+package session
+
+import (
+	"context"
+	"fmt"
+	"math"
+	"strings"
+	"time"
+
+	"waymark/models"
+	"waymark/store"
+	"waymark/stream"
+)
+
+// PipelineOptions configures a [Pipeline].
+type PipelineOptions struct {
+	// Models are the model specs to build (default: the default blend).
+	Models []string
+	// HalfLife is the decay half-life of every count (default 7 days).
+	HalfLife time.Duration
+	Tracker  TrackerOptions
+	Set      models.SetOptions
+}
+
+// DefaultPipelineOptions returns the defaults serve and replay share.
+func DefaultPipelineOptions() PipelineOptions {
+	return PipelineOptions{
+		Models:   []string{models.DefaultBlendSpec},
+		HalfLife: models.DefaultHalfLife,
+		Tracker:  DefaultTrackerOptions(),
+		Set:      models.DefaultSetOptions(),
+	}
+}
+
+func (o *PipelineOptions) validate() error {
+	d := DefaultPipelineOptions()
+	if len(o.Models) == 0 {
+		o.Models = d.Models
+	}
+	if o.HalfLife == 0 {
+		o.HalfLife = d.HalfLife
+	}
+	if o.HalfLife < time.Minute {
+		return fmt.Errorf("%w: HalfLife %s below 1m", ErrBadOption, o.HalfLife)
+	}
+	return o.Tracker.validate()
+}
+
+// itemPrefix is the store prefix of the item dictionary.
+const itemPrefix = "d/i/"
+
+// Pipeline is the learning path serve and replay share: intern the item,
+// update the session window, let every model observe the click. It is a
+// deterministic function of the events applied, in their order. Apply must
+// be called from one goroutine; the caller synchronises queries with it.
+type Pipeline struct {
+	opts     PipelineOptions
+	Dict     *store.Dict
+	Tracker  *Tracker
+	Set      *models.Set
+	recs     map[string]models.Recommender
+	learners []models.Model
+	decay    models.Decay
+	cp       store.Checkpoint
+	buf      []models.Step
+}
+
+// NewPipeline builds the models named in opts, with no state.
+func NewPipeline(opts PipelineOptions) (*Pipeline, error) {
+	if err := opts.validate(); err != nil {
+		return nil, err
+	}
+	tr, err := NewTracker(opts.Tracker)
+	if err != nil {
+		return nil, err
+	}
+	p := &Pipeline{
+		opts:    opts,
+		Dict:    store.NewDict(itemPrefix),
+		Tracker: tr,
+		Set:     models.NewSet(opts.Set),
+		recs:    map[string]models.Recommender{},
+	}
+	for _, spec := range opts.Models {
+		m, err := p.Set.Get(spec)
+		if err != nil {
+			return nil, fmt.Errorf("model %q: %w", spec, err)
+		}
+		p.recs[spec] = models.AsRecommender(m)
+	}
+	p.Set.Pop() // every pipeline answers empty sessions
+	p.learners = p.Set.Learners()
+	for i, m := range p.learners {
+		if pm, ok := m.(models.Persistent); ok {
+			pm.SetPrefix("m/" + p.Set.Keys()[i] + "/")
+		}
+	}
+	p.decay = models.NewDecay(opts.HalfLife, 0)
+	return p, nil
+}
+
+// Options returns the effective options.
+func (p *Pipeline) Options() PipelineOptions { return p.opts }
+
+// Recommender returns the recommender built for spec.
+func (p *Pipeline) Recommender(spec string) (models.Recommender, bool) {
+	r, ok := p.recs[spec]
+	return r, ok
+}
+
+// Checkpoint returns the pipeline's counters.
+func (p *Pipeline) Checkpoint() store.Checkpoint { return p.cp }
+
+// Decay returns the current decay parameters.
+func (p *Pipeline) Decay() models.Decay { return p.decay }
+
+// fingerprint names what the stored counts depend on.
+func (p *Pipeline) fingerprint() string {
+	return fmt.Sprintf("models=%s;half=%s;window=%d", strings.Join(p.Set.Keys(), "|"), p.opts.HalfLife, p.opts.Tracker.Window)
+}
+
+// expireEvery is how many applied events pass between sweeps of timed-out
+// sessions; counting events, not wall time, keeps replay deterministic.
+const expireEvery = 4096
+
+// Apply learns one valid event.
+func (p *Pipeline) Apply(ev *stream.Event) {
+	if p.cp.DecayRef == 0 {
+		p.setDecayRef(ev.TS)
+	} else if p.decay.NeedsRebase(ev.TS) {
+		p.rebase(ev.TS)
+	}
+	item, added := p.Dict.Intern(ev.Item)
+	if added {
+		p.onNewItem(item)
+	}
+	p.cp.Touches++
+	c := p.Tracker.Observe(ev.Session, item, ev.TS, p.cp.Touches, p.nextSession, p.buf)
+	p.buf = c.Window[:0]
+	o := models.Observation{
+		Window:    c.Window,
+		Item:      item,
+		TS:        ev.TS,
+		Kind:      uint8(ev.Kind),
+		SessionNo: c.No,
+		Repeat:    c.Repeat,
+		Weight:    p.decay.Weight(ev.TS),
+	}
+	for _, m := range p.learners {
+		m.Observe(&o)
+	}
+	p.cp.Applied++
+	if ev.TS > p.cp.Watermark {
+		p.cp.Watermark = ev.TS
+	}
+	if p.cp.Applied%expireEvery == 0 {
+		p.Tracker.Expire(p.cp.Watermark)
+	}
+}
+
+func (p *Pipeline) nextSession() uint64 {
+	p.cp.Sessions++
+	return p.cp.Sessions
+}
+
+func (p *Pipeline) onNewItem(models.ItemID) {}
+
+func (p *Pipeline) setDecayRef(ref int64) {
+	p.cp.DecayRef = ref
+	p.decay = models.NewDecay(p.opts.HalfLife, ref)
+	for _, m := range p.learners {
+		if d, ok := m.(models.DecayAware); ok {
+			d.SetDecay(p.decay)
+		}
+	}
+}
+
+// rebase moves the decay reference to ts and rescales every count, so
+// landmark weights stay far inside float64's range however long the
+// service runs.
+func (p *Pipeline) rebase(ts int64) {
+	f := math.Exp2(-float64(ts-p.cp.DecayRef) / p.decay.HalfLifeMS)
+	for _, m := range p.learners {
+		if r, ok := m.(models.Rescaler); ok {
+			r.Rescale(f)
+		}
+	}
+	p.setDecayRef(ts)
+}
+
+// NewQuery turns a sequence of item ids into a query at event time now
+// (0 means the latest event time applied). Unknown items are counted and
+// left out; consecutive repeats collapse.
+func (p *Pipeline) NewQuery(items []string, now int64) models.Query {
+	if now == 0 {
+		now = p.cp.Watermark
+	}
+	q := models.Query{Now: now}
+	for _, s := range items {
+		id, ok := p.Dict.Lookup(s)
+		if !ok {
+			q.Unknown++
+			continue
+		}
+		if n := len(q.Session); n > 0 && q.Session[n-1].Item == id {
+			continue
+		}
+		q.Session = append(q.Session, models.Step{Item: id, TS: now})
+	}
+	return q
+}
+
+// SessionQuery returns a query from a tracked session's window; ok is false
+// when the session is not tracked (the query is then empty).
+func (p *Pipeline) SessionQuery(key string) (models.Query, bool) {
+	steps, no, ok := p.Tracker.Window(key, 0, nil)
+	return models.Query{Session: steps, Now: p.cp.Watermark, SessionNo: no}, ok
+}
+
+// Flush writes everything changed since the last flush, and the
+// checkpoint cp (the caller sets its stream fields), into kv.
+func (p *Pipeline) Flush(tx *store.Txn, cp store.Checkpoint) error {
+	if err := p.Dict.Flush(tx); err != nil {
+		return err
+	}
+	if err := p.Tracker.Flush(tx); err != nil {
+		return err
+	}
+	for _, m := range p.learners {
+		if pm, ok := m.(models.Persistent); ok {
+			if err := pm.Flush(tx); err != nil {
+				return fmt.Errorf("flush %s: %w", pm.Prefix(), err)
+			}
+		}
+	}
+	cp.Config = p.fingerprint()
+	return tx.PutCheckpoint(cp)
+}
+
+// Load restores the pipeline from st. A store built with another model
+// configuration is refused.
+func (p *Pipeline) Load(ctx context.Context, st *store.Store) error {
+	cp, err := st.Checkpoint()
+	if err != nil {
+		return err
+	}
+	if cp.Config != "" && cp.Config != p.fingerprint() {
+		return fmt.Errorf("%w: stored %q, configured %q (use a fresh data folder)", ErrConfigChanged, cp.Config, p.fingerprint())
+	}
+	d, err := st.LoadDict(ctx, itemPrefix)
+	if err != nil {
+		return err
+	}
+	p.Dict = d
+	if err := st.Scan(ctx, []byte(sessionPrefix), p.Tracker.Load); err != nil {
+		return fmt.Errorf("load sessions: %w", err)
+	}
+	p.Tracker.Loaded()
+	for _, m := range p.learners {
+		pm, ok := m.(models.Persistent)
+		if !ok {
+			continue
+		}
+		if err := st.Scan(ctx, []byte(pm.Prefix()), pm.Load); err != nil {
+			return fmt.Errorf("load %s: %w", pm.Prefix(), err)
+		}
+	}
+	p.cp = cp
+	if cp.DecayRef != 0 {
+		p.setDecayRef(cp.DecayRef)
+	}
+	return nil
+}

@@ -1,0 +1,34 @@
+package store
+
+import (
+	"github.com/dgraph-io/badger/v4"
+	"github.com/prometheus/client_golang/prometheus"
+)
+
+type metrics struct {
+	commits       prometheus.Counter
+	commitBytes   prometheus.Counter
+	commitSeconds prometheus.Histogram
+}
+
+func newMetrics(reg prometheus.Registerer, db *badger.DB) *metrics {
+	m := &metrics{
+		commits: prometheus.NewCounter(prometheus.CounterOpts{
+			Name: "waymark_store_commits_total", Help: "Flush transactions committed to the store.",
+		}),
+		commitBytes: prometheus.NewCounter(prometheus.CounterOpts{
+			Name: "waymark_store_written_bytes_total", Help: "Key and value bytes written by flushes.",
+		}),
+		commitSeconds: prometheus.NewHistogram(prometheus.HistogramOpts{
+			Name: "waymark_store_commit_seconds", Help: "Time to build and commit one flush transaction.",
+			Buckets: prometheus.ExponentialBuckets(0.0005, 2, 14),
+		}),
+	}
+	if reg != nil {
+		size := prometheus.NewGaugeFunc(prometheus.GaugeOpts{
+			Name: "waymark_store_size_bytes", Help: "On-disk size of the store (LSM tree and value log).",
+		}, func() float64 { l, v := db.Size(); return float64(l + v) })
+		reg.MustRegister(m.commits, m.commitBytes, m.commitSeconds, size)
+	}
+	return m
+}
