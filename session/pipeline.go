@@ -271,3 +271,39 @@ func (p *Pipeline) Load(ctx context.Context, st *store.Store) error {
 	}
 	return nil
 }
+
+// Track updates the session's window with ev without teaching any model;
+// a temporal-split evaluation uses it for test sessions, which must be
+// tracked to form queries but must not be learned.
+func (p *Pipeline) Track(ev *stream.Event) Click {
+	item, _ := p.Dict.Intern(ev.Item)
+	p.cp.Touches++
+	c := p.Tracker.Observe(ev.Session, item, ev.TS, p.cp.Touches, p.nextSession, p.buf)
+	p.buf = c.Window[:0]
+	if ev.TS > p.cp.Watermark {
+		p.cp.Watermark = ev.TS
+	}
+	return c
+}
+
+// ApplyItem learns one valid catalogue record.
+func (p *Pipeline) ApplyItem(rec *stream.ItemRecord, ts int64) {
+	item, _ := p.Dict.Intern(rec.Item)
+	info := models.ItemInfo{
+		Item:      item,
+		Attrs:     rec.Attrs,
+		Vector:    rec.Vector,
+		Available: rec.Available == nil || *rec.Available,
+		Published: rec.Published,
+		TS:        ts,
+	}
+	if ts == 0 {
+		info.TS = p.cp.Watermark
+	}
+	for _, m := range p.learners {
+		if c, ok := m.(models.CatalogLearner); ok {
+			c.ObserveItem(&info)
+		}
+	}
+	p.cp.Catalog++
+}

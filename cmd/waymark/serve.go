@@ -1,0 +1,176 @@
+package main
+
+import (
+	"context"
+	"encoding/json"
+	"flag"
+	"fmt"
+	"io"
+	"log/slog"
+	"os"
+	"strings"
+	"time"
+
+	"waymark/cmd/waymark/internal/flagconf"
+	"waymark/models"
+	"waymark/session"
+)
+
+// serveFlags holds serve's flags; the demo reuses them.
+type serveFlags struct {
+	fs       *flag.FlagSet
+	config   string
+	data     string
+	http     string
+	nats     string
+	listen   string
+	creds    string
+	tlsCert  string
+	tlsKey   string
+	tlsCA    string
+	stream   string
+	subject  string
+	catalog  string
+	dlq      string
+	blend    string
+	models   string
+	halfLife time.Duration
+	window   int
+	timeout  time.Duration
+	maxSess  int
+	capItem  int
+	srWindow int
+	flushInt time.Duration
+	flushEv  int
+	readyLag uint64
+	sync     bool
+	logLevel string
+}
+
+func newServeFlags(name string, stderr io.Writer) *serveFlags {
+	d := session.DefaultServiceOptions()
+	f := &serveFlags{fs: flag.NewFlagSet(name, flag.ContinueOnError)}
+	fs := f.fs
+	fs.SetOutput(stderr)
+	fs.StringVar(&f.config, "config", "", "JSON config `file` whose keys are these flag names")
+	fs.StringVar(&f.data, "data", d.DataDir, "data `folder` for the store (and the embedded server's JetStream files)")
+	fs.StringVar(&f.http, "http", d.HTTPAddr, "HTTP listen `address`")
+	fs.StringVar(&f.nats, "nats", "", "NATS `URL` of an existing server or cluster; empty starts an embedded server")
+	fs.StringVar(&f.listen, "nats-listen", d.NATSListen, "listen `address` of the embedded NATS server")
+	fs.StringVar(&f.creds, "nats-creds", "", "NATS credentials `file`")
+	fs.StringVar(&f.tlsCert, "nats-tls-cert", "", "client TLS certificate `file` for NATS")
+	fs.StringVar(&f.tlsKey, "nats-tls-key", "", "client TLS key `file` for NATS")
+	fs.StringVar(&f.tlsCA, "nats-tls-ca", "", "CA `file` to verify the NATS server")
+	fs.StringVar(&f.stream, "stream", d.Bus.Stream, "JetStream stream `name`")
+	fs.StringVar(&f.subject, "subject", d.Bus.Subject, "`subject` of click events")
+	fs.StringVar(&f.catalog, "catalog-subject", d.Bus.CatalogSubject, "`subject` of catalogue records")
+	fs.StringVar(&f.dlq, "dead-letter-subject", d.Bus.DeadLetterSubject, "`subject` rejected messages are copied to")
+	fs.StringVar(&f.blend, "blend", models.DefaultBlendSpec, "blend `spec` that answers queries, e.g. blend(markov=1,sr=1,iknn=1,pop=0.1)")
+	fs.StringVar(&f.models, "models", "", "extra model `specs` to learn, comma-separated")
+	fs.DurationVar(&f.halfLife, "half-life", models.DefaultHalfLife, "decay half-life of every count, in event time")
+	fs.IntVar(&f.window, "window", d.Engine.Pipeline.Tracker.Window, "recent clicks kept per session")
+	fs.DurationVar(&f.timeout, "session-timeout", d.Engine.Pipeline.Tracker.Timeout, "event-time inactivity that ends a session")
+	fs.IntVar(&f.maxSess, "max-sessions", d.Engine.Pipeline.Tracker.MaxSessions, "sessions tracked at once (least recently active evicted)")
+	fs.IntVar(&f.capItem, "neighbors-per-item", d.Engine.Pipeline.Set.CapPerItem, "neighbour list cap per item and model")
+	fs.IntVar(&f.srWindow, "sr-window", d.Engine.Pipeline.Set.SRWindow, "Sequential Rules window m")
+	fs.DurationVar(&f.flushInt, "flush-interval", d.Engine.FlushInterval, "longest time between flushes to the store")
+	fs.IntVar(&f.flushEv, "flush-events", d.Engine.FlushEvents, "flush after this many messages")
+	fs.Uint64Var(&f.readyLag, "ready-lag", d.ReadyLag, "consumer lag under which /readyz answers ready")
+	fs.BoolVar(&f.sync, "sync", false, "fsync every store commit (survives power loss, slower)")
+	fs.StringVar(&f.logLevel, "log-level", "info", "log `level`: debug, info, warn, error")
+	return f
+}
+
+// parse parses args and layers environment (WAYMARK_*) and config file.
+func (f *serveFlags) parse(args []string) error {
+	if err := f.fs.Parse(args); err != nil {
+		return err
+	}
+	cfg := f.config
+	if cfg == "" {
+		cfg = os.Getenv(flagconf.EnvName("WAYMARK_", "config"))
+	}
+	return flagconf.Apply(f.fs, "WAYMARK_", cfg, os.LookupEnv)
+}
+
+func (f *serveFlags) logger(w io.Writer) (*slog.Logger, error) {
+	var lvl slog.Level
+	if err := lvl.UnmarshalText([]byte(f.logLevel)); err != nil {
+		return nil, fmt.Errorf("--log-level %q: %w", f.logLevel, err)
+	}
+	return slog.New(slog.NewTextHandler(w, &slog.HandlerOptions{Level: lvl})), nil
+}
+
+func (f *serveFlags) options(log *slog.Logger) (session.ServiceOptions, error) {
+	o := session.DefaultServiceOptions()
+	o.DataDir, o.HTTPAddr, o.NATSListen, o.ReadyLag = f.data, f.http, f.listen, f.readyLag
+	o.Bus.URL, o.Bus.CredsFile = f.nats, f.creds
+	o.Bus.TLSCert, o.Bus.TLSKey, o.Bus.TLSCA = f.tlsCert, f.tlsKey, f.tlsCA
+	o.Bus.Stream, o.Bus.Subject, o.Bus.CatalogSubject, o.Bus.DeadLetterSubject = f.stream, f.subject, f.catalog, f.dlq
+	o.Bus.Name = "waymark-serve"
+	o.Engine.Blend = f.blend
+	o.Engine.FlushInterval, o.Engine.FlushEvents = f.flushInt, f.flushEv
+	o.Engine.CatalogSubject = f.catalog
+	p := &o.Engine.Pipeline
+	p.HalfLife = f.halfLife
+	p.Tracker.Window, p.Tracker.Timeout, p.Tracker.MaxSessions = f.window, f.timeout, f.maxSess
+	p.Set.CapPerItem, p.Set.SRWindow = f.capItem, f.srWindow
+	p.Models = []string{f.blend}
+	if strings.TrimSpace(f.models) != "" {
+		extra, err := models.SplitSpecs(f.models)
+		if err != nil {
+			return o, fmt.Errorf("--models: %w", err)
+		}
+		p.Models = append(p.Models, extra...)
+	}
+	o.Store.SyncWrites = f.sync
+	o.Logger = log
+	return o, nil
+}
+
+func runServe(ctx context.Context, args []string, stdout, stderr io.Writer) int {
+	f := newServeFlags("serve", stderr)
+	f.fs.Usage = func() {
+		fmt.Fprintln(f.fs.Output(), "usage: waymark serve [flags]\n\nLearn from click events on NATS JetStream and answer next-item queries over HTTP.\nEvery flag can also come from WAYMARK_<FLAG> (e.g. WAYMARK_HALF_LIFE) or the --config file.\n\nflags:")
+		f.fs.PrintDefaults()
+	}
+	if err := f.parse(args); err != nil {
+		if err == flag.ErrHelp {
+			return 0
+		}
+		fmt.Fprintln(stderr, "waymark serve:", err)
+		return 2
+	}
+	log, err := f.logger(stderr)
+	if err != nil {
+		fmt.Fprintln(stderr, "waymark serve:", err)
+		return 2
+	}
+	opts, err := f.options(log)
+	if err != nil {
+		fmt.Fprintln(stderr, "waymark serve:", err)
+		return 2
+	}
+	eff, _ := json.Marshal(flagconf.Effective(f.fs, "nats-creds", "nats-tls-key"))
+	log.Info("effective config", "config", string(eff))
+	svc, err := session.Open(ctx, opts)
+	if err != nil {
+		log.Error("start failed", "err", err)
+		return 1
+	}
+	code := 0
+	select {
+	case <-ctx.Done():
+		log.Info("shutting down")
+	case err := <-svc.Err():
+		log.Error("fatal", "err", err)
+		code = 1
+	}
+	sctx, cancel := context.WithTimeout(context.Background(), 30*time.Second)
+	defer cancel()
+	if err := svc.Shutdown(sctx); err != nil {
+		log.Error("shutdown", "err", err)
+		code = 1
+	}
+	return code
+}

@@ -1,0 +1,316 @@
+package session
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"log/slog"
+	"sync"
+	"sync/atomic"
+	"time"
+
+	"github.com/prometheus/client_golang/prometheus"
+
+	"waymark/models"
+	"waymark/store"
+	"waymark/stream"
+)
+
+// EngineOptions configures an [Engine].
+type EngineOptions struct {
+	Pipeline PipelineOptions
+	// Blend is the spec of the blend that answers queries (default
+	// "blend"). It is built alongside Pipeline.Models.
+	Blend string
+	// FlushInterval bounds the time between flushes (default 500ms).
+	FlushInterval time.Duration
+	// FlushEvents flushes after this many applied messages (default 50,000).
+	FlushEvents int
+	// CatalogSubject is the subject whose messages are catalogue records
+	// (default "waymark.catalog"); every other subject carries clicks.
+	CatalogSubject string
+	Logger         *slog.Logger
+	Registerer     prometheus.Registerer
+}
+
+// DefaultEngineOptions returns serve's defaults.
+func DefaultEngineOptions() EngineOptions {
+	return EngineOptions{
+		Pipeline:       DefaultPipelineOptions(),
+		Blend:          models.DefaultBlendSpec,
+		FlushInterval:  500 * time.Millisecond,
+		FlushEvents:    50_000,
+		CatalogSubject: "waymark.catalog",
+	}
+}
+
+func (o *EngineOptions) validate() error {
+	d := DefaultEngineOptions()
+	if o.Blend == "" {
+		o.Blend = d.Blend
+	}
+	if o.FlushInterval == 0 {
+		o.FlushInterval = d.FlushInterval
+	}
+	if o.FlushEvents == 0 {
+		o.FlushEvents = d.FlushEvents
+	}
+	if o.CatalogSubject == "" {
+		o.CatalogSubject = d.CatalogSubject
+	}
+	if o.FlushInterval < time.Millisecond {
+		return fmt.Errorf("%w: FlushInterval %s below 1ms", ErrBadOption, o.FlushInterval)
+	}
+	if o.FlushEvents < 1 {
+		return fmt.Errorf("%w: FlushEvents %d below 1", ErrBadOption, o.FlushEvents)
+	}
+	if o.Logger == nil {
+		o.Logger = slog.New(slog.DiscardHandler)
+	}
+	found := false
+	for _, m := range o.Pipeline.Models {
+		found = found || m == o.Blend
+	}
+	if !found {
+		o.Pipeline.Models = append(append([]string(nil), o.Pipeline.Models...), o.Blend)
+	}
+	return nil
+}
+
+// DeadLetterer receives messages the engine rejects.
+type DeadLetterer interface {
+	DeadLetter(ctx context.Context, data []byte, seq uint64, reason string) error
+}
+
+// Engine is the live learner: it applies bus messages to a [Pipeline],
+// flushes the state to the store with the stream position in one
+// transaction, acknowledges the bus after the commit, and answers queries
+// concurrently.
+type Engine struct {
+	opts  EngineOptions
+	log   *slog.Logger
+	st    *store.Store
+	dlq   DeadLetterer
+	met   *metrics
+	blend *models.Blend
+	iknn  *models.IKNN
+
+	// mu protects the pipeline's models and dictionary: the consumer
+	// goroutine applies under the write lock, queries read under the
+	// read lock. The tracker has locks of its own.
+	mu sync.RWMutex
+	p  *Pipeline
+
+	// Fields below belong to the consumer goroutine.
+	cp        store.Checkpoint // counters as of the last applied message
+	pending   int              // messages applied since the last flush
+	lastMsg   *stream.Msg      // last message applied, acknowledged after the flush
+	lastFlush time.Time
+
+	// Readable from any goroutine.
+	applied    atomic.Uint64
+	rejected   atomic.Uint64
+	lastSeq    atomic.Uint64
+	streamLast atomic.Uint64
+	loaded     atomic.Bool
+}
+
+// NewEngine builds the models and loads their state from st. dlq may be nil.
+func NewEngine(ctx context.Context, st *store.Store, dlq DeadLetterer, opts EngineOptions) (*Engine, error) {
+	if err := opts.validate(); err != nil {
+		return nil, err
+	}
+	p, err := NewPipeline(opts.Pipeline)
+	if err != nil {
+		return nil, err
+	}
+	m, _ := p.Set.Get(opts.Blend)
+	blend, ok := m.(*models.Blend)
+	if !ok {
+		return nil, fmt.Errorf("%w: Blend %q is not a blend", ErrBadOption, opts.Blend)
+	}
+	e := &Engine{opts: opts, log: opts.Logger, st: st, dlq: dlq, p: p, blend: blend, lastFlush: time.Now()}
+	if im, err := p.Set.Get("iknn"); err == nil {
+		e.iknn, _ = im.(*models.IKNN)
+	}
+	start := time.Now()
+	if err := p.Load(ctx, st); err != nil {
+		return nil, fmt.Errorf("load state: %w", err)
+	}
+	e.cp = p.Checkpoint()
+	e.publishCounters()
+	e.met = newMetrics(opts.Registerer, e)
+	e.loaded.Store(true)
+	e.log.Info("state loaded", "seq", e.cp.Seq, "events_applied", e.cp.Applied,
+		"items", p.Dict.Len(), "sessions", p.Tracker.Len(), "took", time.Since(start).Round(time.Millisecond))
+	return e, nil
+}
+
+// ResumeSeq is the first stream sequence the consumer must deliver.
+func (e *Engine) ResumeSeq() uint64 { return e.lastSeq.Load() + 1 }
+
+func (e *Engine) publishCounters() {
+	e.applied.Store(e.cp.Applied)
+	e.rejected.Store(e.cp.Rejected)
+	e.lastSeq.Store(e.cp.Seq)
+}
+
+// applyChunk bounds how many messages are applied under one hold of the
+// write lock, so queries wait at most that long.
+const applyChunk = 256
+
+// Handle is the consumer's handler: it applies msgs in order, skipping any
+// at or below the stored sequence, and flushes when due. An empty msgs is a
+// timer tick.
+func (e *Engine) Handle(ctx context.Context, msgs []stream.Msg) error {
+	for len(msgs) > 0 {
+		n := min(len(msgs), applyChunk)
+		e.applyLocked(ctx, msgs[:n])
+		msgs = msgs[n:]
+	}
+	if e.pending >= e.opts.FlushEvents || (e.pending > 0 && time.Since(e.lastFlush) >= e.opts.FlushInterval) {
+		return e.Flush(ctx)
+	}
+	return nil
+}
+
+type rejection struct {
+	data   []byte
+	seq    uint64
+	reason string
+}
+
+func (e *Engine) applyLocked(ctx context.Context, msgs []stream.Msg) {
+	var rejects []rejection
+	e.mu.Lock()
+	for i := range msgs {
+		m := &msgs[i]
+		if m.Seq <= e.cp.Seq {
+			e.met.skipped.Inc() // redelivered: already in the stored state
+			continue
+		}
+		if err := e.applyOneLocked(m); err != nil {
+			e.cp.Rejected++
+			rejects = append(rejects, rejection{m.Data, m.Seq, err.Error()})
+		}
+		e.cp.Seq = m.Seq
+		e.pending++
+		e.lastMsg = m
+	}
+	pc := e.p.Checkpoint()
+	e.cp.Applied, e.cp.Catalog = pc.Applied, pc.Catalog
+	e.mu.Unlock()
+	e.publishCounters()
+	for _, r := range rejects {
+		e.met.rejected.Inc()
+		e.log.Debug("event rejected", "seq", r.seq, "reason", r.reason)
+		if e.dlq != nil {
+			if err := e.dlq.DeadLetter(ctx, r.data, r.seq, r.reason); err != nil {
+				e.log.Warn("dead-letter publish failed", "seq", r.seq, "err", err)
+			}
+		}
+	}
+}
+
+func (e *Engine) applyOneLocked(m *stream.Msg) error {
+	if m.Subject == e.opts.CatalogSubject {
+		rec, err := stream.DecodeItemJSON(m.Data)
+		if err != nil {
+			return err
+		}
+		e.p.ApplyItem(&rec, 0)
+		return nil
+	}
+	ev, err := stream.DecodeJSON(m.Data)
+	if err != nil {
+		return err
+	}
+	ev.Seq = m.Seq
+	e.p.Apply(&ev)
+	e.met.applied.Inc()
+	return nil
+}
+
+// Flush commits everything applied since the last flush with the stream
+// position, then acknowledges the bus.
+func (e *Engine) Flush(ctx context.Context) error {
+	if e.pending == 0 {
+		return nil
+	}
+	start := time.Now()
+	cp := e.cp
+	// Flushing reads model state and clears dirty marks, both owned by
+	// this goroutine; queries only read, so a read lock suffices.
+	e.mu.RLock()
+	pc := e.p.Checkpoint()
+	cp.DecayRef, cp.Watermark, cp.Sessions, cp.Touches = pc.DecayRef, pc.Watermark, pc.Sessions, pc.Touches
+	err := e.st.Commit(func(tx *store.Txn) error { return e.p.Flush(tx, cp) })
+	e.mu.RUnlock()
+	if err != nil {
+		return fmt.Errorf("flush at seq %d: %w", cp.Seq, err)
+	}
+	e.met.flushSeconds.Observe(time.Since(start).Seconds())
+	if e.lastMsg != nil {
+		if err := e.lastMsg.AckAll(); err != nil && !errors.Is(err, stream.ErrNoAck) {
+			// The state is committed; a lost ack only means redelivery,
+			// which the sequence check skips.
+			e.log.Debug("ack failed", "seq", cp.Seq, "err", err)
+		}
+	}
+	e.pending, e.lastMsg, e.lastFlush = 0, nil, time.Now()
+	return nil
+}
+
+// SetStreamLast records the stream's last sequence, for lag and readiness.
+func (e *Engine) SetStreamLast(seq uint64) { e.streamLast.Store(seq) }
+
+// Lag returns how many stream messages are not applied yet.
+func (e *Engine) Lag() uint64 {
+	last, seq := e.streamLast.Load(), e.lastSeq.Load()
+	if last <= seq {
+		return 0
+	}
+	return last - seq
+}
+
+// Loaded reports whether the stored state has been loaded.
+func (e *Engine) Loaded() bool { return e.loaded.Load() }
+
+// Stats is a snapshot of the engine's counters.
+type Stats struct {
+	EventsApplied  uint64 `json:"events_applied"`
+	EventsRejected uint64 `json:"events_rejected"`
+	CatalogApplied uint64 `json:"catalog_applied"`
+	LastSequence   uint64 `json:"last_sequence"`
+	StreamLast     uint64 `json:"stream_last_sequence"`
+	Lag            uint64 `json:"consumer_lag"`
+	Items          int    `json:"items"`
+	SessionsActive int    `json:"sessions_active"`
+	Watermark      string `json:"event_time_watermark,omitempty"`
+	StoreBytes     int64  `json:"store_bytes"`
+	Models         []string `json:"models"`
+}
+
+// Stats returns the engine's counters.
+func (e *Engine) Stats() Stats {
+	e.mu.RLock()
+	items := e.p.Dict.Len()
+	wm := e.p.Checkpoint().Watermark
+	keys := append([]string(nil), e.p.Set.Keys()...)
+	e.mu.RUnlock()
+	s := Stats{
+		EventsApplied:  e.applied.Load(),
+		EventsRejected: e.rejected.Load(),
+		LastSequence:   e.lastSeq.Load(),
+		StreamLast:     e.streamLast.Load(),
+		Lag:            e.Lag(),
+		Items:          items,
+		SessionsActive: e.p.Tracker.Len(),
+		StoreBytes:     e.st.Size(),
+		Models:         keys,
+	}
+	if wm > 0 {
+		s.Watermark = time.UnixMilli(wm).UTC().Format(time.RFC3339Nano)
+	}
+	return s
+}

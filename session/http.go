@@ -1,0 +1,425 @@
+package session
+
+import (
+	"bytes"
+	"context"
+	"encoding/json"
+	"errors"
+	"fmt"
+	"io"
+	"log/slog"
+	"net/http"
+	"strconv"
+	"time"
+
+	"github.com/prometheus/client_golang/prometheus"
+	"github.com/prometheus/client_golang/prometheus/promhttp"
+
+	"waymark/stream"
+)
+
+// Publisher puts writes on the bus; the engine learns them from there, so
+// every replica sees the same log.
+type Publisher interface {
+	PublishEvents(ctx context.Context, evs []stream.Event) error
+	PublishItems(ctx context.Context, recs []stream.ItemRecord) error
+}
+
+// ServerOptions configures the HTTP API.
+type ServerOptions struct {
+	// MaxBody bounds request bodies (default 10 MiB); larger get 413.
+	MaxBody int64
+	// MaxK bounds k (default 1000).
+	MaxK int
+	// DefaultK is k when the request gives none (default 10).
+	DefaultK int
+	// Ready reports readiness for /readyz with a reason when not ready.
+	Ready func() (bool, string)
+	// Gatherer serves /metrics (nil: no metrics endpoint).
+	Gatherer   prometheus.Gatherer
+	Registerer prometheus.Registerer
+	Logger     *slog.Logger
+}
+
+func (o *ServerOptions) validate() {
+	if o.MaxBody == 0 {
+		o.MaxBody = 10 << 20
+	}
+	if o.MaxK == 0 {
+		o.MaxK = 1000
+	}
+	if o.DefaultK == 0 {
+		o.DefaultK = 10
+	}
+	if o.Logger == nil {
+		o.Logger = slog.New(slog.DiscardHandler)
+	}
+	if o.Ready == nil {
+		o.Ready = func() (bool, string) { return true, "" }
+	}
+}
+
+// Server is the HTTP API over an engine.
+type Server struct {
+	opts     ServerOptions
+	eng      *Engine
+	pub      Publisher
+	mux      *http.ServeMux
+	requests *prometheus.CounterVec
+	rejected prometheus.Counter
+}
+
+// NewServer returns the HTTP API; pub may be nil for a read-only server.
+func NewServer(eng *Engine, pub Publisher, opts ServerOptions) *Server {
+	opts.validate()
+	s := &Server{opts: opts, eng: eng, pub: pub, mux: http.NewServeMux()}
+	s.requests = prometheus.NewCounterVec(prometheus.CounterOpts{
+		Name: "waymark_http_requests_total", Help: "HTTP requests by route and status code.",
+	}, []string{"route", "code"})
+	s.rejected = prometheus.NewCounter(prometheus.CounterOpts{
+		Name: "waymark_http_events_rejected_total", Help: "Events and records rejected by HTTP ingest before reaching the bus.",
+	})
+	if opts.Registerer != nil {
+		opts.Registerer.MustRegister(s.requests, s.rejected)
+	}
+	s.route("POST /v1/events", s.postEvents)
+	s.route("POST /v1/items", s.postItems)
+	s.route("GET /v1/sessions/{id}/next", s.sessionNext)
+	s.route("DELETE /v1/sessions/{id}", s.forgetSession)
+	s.route("POST /v1/next", s.postNext)
+	s.route("POST /v1/score", s.postScore)
+	s.route("GET /v1/items/{id}/neighbors", s.neighbors)
+	s.route("GET /v1/popular", s.popular)
+	s.route("GET /v1/stats", s.stats)
+	s.route("GET /healthz", func(w http.ResponseWriter, r *http.Request) {
+		writeJSON(w, http.StatusOK, map[string]string{"status": "ok"})
+	})
+	s.route("GET /readyz", s.readyz)
+	if opts.Gatherer != nil {
+		s.mux.Handle("GET /metrics", promhttp.HandlerFor(opts.Gatherer, promhttp.HandlerOpts{}))
+	}
+	s.mux.HandleFunc("/", func(w http.ResponseWriter, r *http.Request) {
+		writeError(w, http.StatusNotFound, CodeNotFound, "no route "+r.Method+" "+r.URL.Path)
+	})
+	return s
+}
+
+// ServeHTTP implements http.Handler.
+func (s *Server) ServeHTTP(w http.ResponseWriter, r *http.Request) { s.mux.ServeHTTP(w, r) }
+
+type statusWriter struct {
+	http.ResponseWriter
+	code int
+}
+
+func (w *statusWriter) WriteHeader(code int) {
+	w.code = code
+	w.ResponseWriter.WriteHeader(code)
+}
+
+func (s *Server) route(pattern string, h http.HandlerFunc) {
+	s.mux.HandleFunc(pattern, func(w http.ResponseWriter, r *http.Request) {
+		sw := &statusWriter{ResponseWriter: w, code: http.StatusOK}
+		defer func() {
+			if p := recover(); p != nil {
+				s.opts.Logger.Error("handler panic", "route", pattern, "panic", fmt.Sprint(p))
+				writeError(sw, http.StatusInternalServerError, CodeInternal, "internal error")
+			}
+			s.requests.WithLabelValues(pattern, strconv.Itoa(sw.code)).Inc()
+		}()
+		r.Body = http.MaxBytesReader(sw, r.Body, s.opts.MaxBody)
+		h(sw, r)
+	})
+}
+
+func writeJSON(w http.ResponseWriter, code int, v any) {
+	w.Header().Set("Content-Type", "application/json")
+	w.WriteHeader(code)
+	_ = json.NewEncoder(w).Encode(v)
+}
+
+func writeError(w http.ResponseWriter, code int, errCode, msg string) {
+	writeJSON(w, code, errorReply{Error: apiError{Code: errCode, Message: msg}})
+}
+
+// readBody reads the whole body, answering 413 or 400 itself on failure.
+func (s *Server) readBody(w http.ResponseWriter, r *http.Request) ([]byte, bool) {
+	b, err := io.ReadAll(r.Body)
+	if err != nil {
+		var mbe *http.MaxBytesError
+		if errors.As(err, &mbe) {
+			writeError(w, http.StatusRequestEntityTooLarge, CodeBodyTooLarge,
+				fmt.Sprintf("request body exceeds %d bytes", mbe.Limit))
+			return nil, false
+		}
+		writeError(w, http.StatusBadRequest, CodeInvalidJSON, "reading body: "+err.Error())
+		return nil, false
+	}
+	return b, true
+}
+
+func (s *Server) decodeBody(w http.ResponseWriter, r *http.Request, v any) bool {
+	b, ok := s.readBody(w, r)
+	if !ok {
+		return false
+	}
+	dec := json.NewDecoder(bytes.NewReader(b))
+	if err := dec.Decode(v); err != nil {
+		writeError(w, http.StatusBadRequest, CodeInvalidJSON, "body: "+err.Error())
+		return false
+	}
+	if dec.More() {
+		writeError(w, http.StatusBadRequest, CodeInvalidJSON, "body: more than one JSON value")
+		return false
+	}
+	return true
+}
+
+// parseK reads k from a query string value ("" gives the default).
+func (s *Server) parseK(raw string) (int, error) {
+	if raw == "" {
+		return s.opts.DefaultK, nil
+	}
+	k, err := strconv.Atoi(raw)
+	if err != nil || k < 1 || k > s.opts.MaxK {
+		return 0, fmt.Errorf("k=%q: must be an integer from 1 to %d", raw, s.opts.MaxK)
+	}
+	return k, nil
+}
+
+func (s *Server) checkK(k *int) (int, error) {
+	if k == nil {
+		return s.opts.DefaultK, nil
+	}
+	if *k < 1 || *k > s.opts.MaxK {
+		return 0, fmt.Errorf("k=%d: must be from 1 to %d", *k, s.opts.MaxK)
+	}
+	return *k, nil
+}
+
+func validID(what, id string, maxLen int) error {
+	if id == "" || len(id) > maxLen {
+		return fmt.Errorf("%s id must be 1 to %d bytes, got %d", what, maxLen, len(id))
+	}
+	return nil
+}
+
+func (s *Server) sessionNext(w http.ResponseWriter, r *http.Request) {
+	id := r.PathValue("id")
+	if err := validID("session", id, stream.MaxSessionBytes); err != nil {
+		writeError(w, http.StatusBadRequest, CodeInvalidParam, err.Error())
+		return
+	}
+	k, err := s.parseK(r.URL.Query().Get("k"))
+	if err != nil {
+		writeError(w, http.StatusBadRequest, CodeInvalidParam, err.Error())
+		return
+	}
+	keep, err := parseBool(r.URL.Query().Get("keep_session_items"))
+	if err != nil {
+		writeError(w, http.StatusBadRequest, CodeInvalidParam, err.Error())
+		return
+	}
+	writeJSON(w, http.StatusOK, s.eng.Next(NextRequest{Session: id, K: k, Keep: keep}))
+}
+
+func parseBool(raw string) (bool, error) {
+	if raw == "" {
+		return false, nil
+	}
+	b, err := strconv.ParseBool(raw)
+	if err != nil {
+		return false, fmt.Errorf("keep_session_items=%q: must be true or false", raw)
+	}
+	return b, nil
+}
+
+func (s *Server) postNext(w http.ResponseWriter, r *http.Request) {
+	var body nextBody
+	if !s.decodeBody(w, r, &body) {
+		return
+	}
+	k, err := s.checkK(body.K)
+	if err != nil {
+		writeError(w, http.StatusBadRequest, CodeInvalidParam, err.Error())
+		return
+	}
+	if err := checkItems("items", body.Items); err != nil {
+		writeError(w, http.StatusBadRequest, CodeInvalidParam, err.Error())
+		return
+	}
+	writeJSON(w, http.StatusOK, s.eng.Next(NextRequest{Items: body.Items, K: k, Keep: body.Keep}))
+}
+
+// maxListLen bounds items and candidates per request.
+const maxListLen = 10_000
+
+func checkItems(field string, items []string) error {
+	if len(items) > maxListLen {
+		return fmt.Errorf("%s: %d entries, at most %d", field, len(items), maxListLen)
+	}
+	for i, it := range items {
+		if err := validID("item", it, stream.MaxItemBytes); err != nil {
+			return fmt.Errorf("%s[%d]: %w", field, i, err)
+		}
+	}
+	return nil
+}
+
+func (s *Server) postScore(w http.ResponseWriter, r *http.Request) {
+	var body scoreBody
+	if !s.decodeBody(w, r, &body) {
+		return
+	}
+	if err := checkItems("items", body.Items); err != nil {
+		writeError(w, http.StatusBadRequest, CodeInvalidParam, err.Error())
+		return
+	}
+	if err := checkItems("candidates", body.Candidates); err != nil {
+		writeError(w, http.StatusBadRequest, CodeInvalidParam, err.Error())
+		return
+	}
+	writeJSON(w, http.StatusOK, s.eng.Score(ScoreRequest{Items: body.Items, Candidates: body.Candidates}))
+}
+
+func (s *Server) neighbors(w http.ResponseWriter, r *http.Request) {
+	id := r.PathValue("id")
+	if err := validID("item", id, stream.MaxItemBytes); err != nil {
+		writeError(w, http.StatusBadRequest, CodeInvalidParam, err.Error())
+		return
+	}
+	k, err := s.parseK(r.URL.Query().Get("k"))
+	if err != nil {
+		writeError(w, http.StatusBadRequest, CodeInvalidParam, err.Error())
+		return
+	}
+	ns, known := s.eng.Neighbors(id, k)
+	writeJSON(w, http.StatusOK, neighborsReply{Item: id, Known: known, Neighbors: ns})
+}
+
+func (s *Server) popular(w http.ResponseWriter, r *http.Request) {
+	k, err := s.parseK(r.URL.Query().Get("k"))
+	if err != nil {
+		writeError(w, http.StatusBadRequest, CodeInvalidParam, err.Error())
+		return
+	}
+	writeJSON(w, http.StatusOK, popularReply{Items: s.eng.Popular(k)})
+}
+
+func (s *Server) forgetSession(w http.ResponseWriter, r *http.Request) {
+	id := r.PathValue("id")
+	if err := validID("session", id, stream.MaxSessionBytes); err != nil {
+		writeError(w, http.StatusBadRequest, CodeInvalidParam, err.Error())
+		return
+	}
+	writeJSON(w, http.StatusOK, forgetReply{Session: id, Tracked: s.eng.ForgetSession(id)})
+}
+
+func (s *Server) stats(w http.ResponseWriter, r *http.Request) {
+	writeJSON(w, http.StatusOK, s.eng.Stats())
+}
+
+func (s *Server) readyz(w http.ResponseWriter, r *http.Request) {
+	ok, why := s.opts.Ready()
+	if !ok {
+		writeError(w, http.StatusServiceUnavailable, CodeUnavailable, why)
+		return
+	}
+	writeJSON(w, http.StatusOK, map[string]string{"status": "ready"})
+}
+
+// splitBatch calls f for each record of an NDJSON body or a JSON array,
+// with its 1-based line (NDJSON) or index+1 (array).
+func splitBatch(body []byte, f func(n int, rec []byte)) error {
+	trimmed := bytes.TrimLeft(body, " \t\r\n")
+	if len(trimmed) > 0 && trimmed[0] == '[' {
+		var arr []json.RawMessage
+		if err := json.Unmarshal(trimmed, &arr); err != nil {
+			return fmt.Errorf("JSON array: %w", err)
+		}
+		for i, rec := range arr {
+			f(i+1, rec)
+		}
+		return nil
+	}
+	line := 0
+	for len(body) > 0 {
+		line++
+		var rec []byte
+		if i := bytes.IndexByte(body, '\n'); i >= 0 {
+			rec, body = body[:i], body[i+1:]
+		} else {
+			rec, body = body, nil
+		}
+		if len(bytes.TrimSpace(rec)) == 0 {
+			continue
+		}
+		f(line, rec)
+	}
+	return nil
+}
+
+func (s *Server) postEvents(w http.ResponseWriter, r *http.Request) {
+	var evs []stream.Event
+	s.ingest(w, r, func(rec []byte) error {
+		ev, err := stream.DecodeJSON(rec)
+		if err == nil {
+			evs = append(evs, ev)
+		}
+		return err
+	}, func(ctx context.Context) error { return s.pub.PublishEvents(ctx, evs) })
+}
+
+func (s *Server) postItems(w http.ResponseWriter, r *http.Request) {
+	var recs []stream.ItemRecord
+	s.ingest(w, r, func(rec []byte) error {
+		it, err := stream.DecodeItemJSON(rec)
+		if err == nil {
+			recs = append(recs, it)
+		}
+		return err
+	}, func(ctx context.Context) error { return s.pub.PublishItems(ctx, recs) })
+}
+
+// ingest decodes a batch record by record, publishes the valid ones and
+// reports the rest by line.
+func (s *Server) ingest(w http.ResponseWriter, r *http.Request, decode func([]byte) error, publish func(context.Context) error) {
+	if s.pub == nil {
+		writeError(w, http.StatusServiceUnavailable, CodeUnavailable, "this server does not take writes")
+		return
+	}
+	body, ok := s.readBody(w, r)
+	if !ok {
+		return
+	}
+	rep := ingestReply{Errors: []lineReport{}}
+	err := splitBatch(body, func(n int, rec []byte) {
+		if err := decode(rec); err != nil {
+			rep.Rejected++
+			if len(rep.Errors) < 100 {
+				rep.Errors = append(rep.Errors, lineReport{Line: n, Message: err.Error()})
+			}
+			return
+		}
+		rep.Accepted++
+	})
+	if err != nil {
+		writeError(w, http.StatusBadRequest, CodeInvalidJSON, err.Error())
+		return
+	}
+	s.rejected.Add(float64(rep.Rejected))
+	if rep.Accepted > 0 {
+		ctx, cancel := context.WithTimeout(r.Context(), 30*time.Second)
+		defer cancel()
+		if err := publish(ctx); err != nil {
+			writeError(w, http.StatusServiceUnavailable, CodeUnavailable, "publish to the bus: "+err.Error())
+			return
+		}
+	}
+	code := http.StatusOK
+	if rep.Accepted == 0 && rep.Rejected > 0 {
+		code = http.StatusBadRequest
+		rep.Error = &apiError{Code: CodeInvalidEvents, Message: fmt.Sprintf("all %d records rejected", rep.Rejected)}
+	}
+	writeJSON(w, code, rep)
+}

@@ -1,0 +1,199 @@
+package session
+
+import (
+	"time"
+
+	"waymark/models"
+)
+
+// NextRequest asks for next items.
+type NextRequest struct {
+	// Session names a tracked session; when empty, Items is the sequence.
+	Session string
+	Items   []string
+	K       int
+	// Keep keeps items already in the session among the answers.
+	Keep bool
+}
+
+// Recommendation is one answered item.
+type Recommendation struct {
+	Item     string             `json:"item"`
+	Score    float64            `json:"score"`
+	Features map[string]float64 `json:"features,omitempty"`
+}
+
+// NextResult is the answer to a NextRequest.
+type NextResult struct {
+	Items []Recommendation `json:"items"`
+	// Source says which signal answered: "blend", or "pop" when only
+	// popularity could (an empty session, or only unknown items).
+	Source string `json:"source"`
+	// Tracked says a named session was found.
+	Tracked bool `json:"tracked"`
+	// Known and Unknown count the session's items the models know.
+	Known   int `json:"known"`
+	Unknown int `json:"unknown"`
+}
+
+// Source names.
+const (
+	SourceBlend = "blend"
+	SourcePop   = "pop"
+)
+
+// Next answers a next-items request.
+func (e *Engine) Next(req NextRequest) NextResult {
+	start := time.Now()
+	e.mu.RLock()
+	var q models.Query
+	var res NextResult
+	if req.Session != "" {
+		q, res.Tracked = e.p.SessionQuery(req.Session)
+	} else {
+		q = e.p.NewQuery(req.Items, 0)
+	}
+	var skip func(models.ItemID) bool
+	if !req.Keep && len(q.Session) > 0 {
+		skip = func(id models.ItemID) bool {
+			for _, s := range q.Session {
+				if s.Item == id {
+					return true
+				}
+			}
+			return false
+		}
+	}
+	r := e.blend.Explain(&q, req.K, skip)
+	names := e.blend.Signals()
+	res.Items = make([]Recommendation, len(r.Items))
+	for i, it := range r.Items {
+		f := make(map[string]float64, len(names))
+		for j, n := range names {
+			if v := r.Features[i][j]; v != 0 {
+				f[n] = v
+			}
+		}
+		res.Items[i] = Recommendation{Item: e.p.Dict.Name(it.Item), Score: it.Score, Features: f}
+	}
+	e.mu.RUnlock()
+	res.Source = SourceBlend
+	if r.Fallback {
+		res.Source = SourcePop
+	}
+	res.Known, res.Unknown = len(q.Session), q.Unknown
+	e.met.observeQuery("next", res.Source, time.Since(start))
+	return res
+}
+
+// ScoreRequest asks for features of caller-supplied candidates.
+type ScoreRequest struct {
+	Items      []string
+	Candidates []string
+}
+
+// ScoredCandidate is one candidate's blended score and features.
+type ScoredCandidate struct {
+	Item     string             `json:"item"`
+	Score    float64            `json:"score"`
+	Features map[string]float64 `json:"features"`
+	// Unknown flags a candidate the models have never seen.
+	Unknown bool `json:"unknown"`
+}
+
+// ScoreResult answers a ScoreRequest, candidates in request order.
+type ScoreResult struct {
+	Candidates []ScoredCandidate `json:"candidates"`
+	Known      int               `json:"known"`
+	Unknown    int               `json:"unknown"`
+}
+
+// Score computes per-signal features and the blended score of each
+// candidate, keeping the caller's order. Unknown candidates score zero and
+// are flagged.
+func (e *Engine) Score(req ScoreRequest) ScoreResult {
+	start := time.Now()
+	e.mu.RLock()
+	q := e.p.NewQuery(req.Items, 0)
+	ids := make([]models.ItemID, 0, len(req.Candidates))
+	known := make([]bool, len(req.Candidates))
+	for i, c := range req.Candidates {
+		if id, ok := e.p.Dict.Lookup(c); ok {
+			ids = append(ids, id)
+			known[i] = true
+		}
+	}
+	rows := e.blend.Score(&q, ids)
+	names := e.blend.Signals()
+	e.mu.RUnlock()
+	res := ScoreResult{Candidates: make([]ScoredCandidate, len(req.Candidates)), Known: len(q.Session), Unknown: q.Unknown}
+	j := 0
+	for i, c := range req.Candidates {
+		sc := ScoredCandidate{Item: c, Features: make(map[string]float64, len(names))}
+		if known[i] {
+			row := rows[j]
+			j++
+			sc.Score = row.Score
+			for k, n := range names {
+				sc.Features[n] = row.Features[k]
+			}
+		} else {
+			sc.Unknown = true
+			for _, n := range names {
+				sc.Features[n] = 0
+			}
+		}
+		res.Candidates[i] = sc
+	}
+	e.met.observeQuery("score", SourceBlend, time.Since(start))
+	return res
+}
+
+// Neighbor is an item and its similarity.
+type Neighbor struct {
+	Item  string  `json:"item"`
+	Score float64 `json:"score"`
+}
+
+// Neighbors returns the k items most co-visited with item (cosine), and
+// whether the item is known.
+func (e *Engine) Neighbors(item string, k int) ([]Neighbor, bool) {
+	e.mu.RLock()
+	defer e.mu.RUnlock()
+	id, ok := e.p.Dict.Lookup(item)
+	if !ok || e.iknn == nil {
+		return []Neighbor{}, ok
+	}
+	ns := e.iknn.Neighbors(id, k, e.p.Checkpoint().Watermark)
+	out := make([]Neighbor, len(ns))
+	for i, n := range ns {
+		out[i] = Neighbor{Item: e.p.Dict.Name(n.Item), Score: n.Score}
+	}
+	return out, true
+}
+
+// PopularItem is an item and its decayed click count at the watermark.
+type PopularItem struct {
+	Item   string  `json:"item"`
+	Clicks float64 `json:"clicks"`
+}
+
+// Popular returns the k most popular items.
+func (e *Engine) Popular(k int) []PopularItem {
+	e.mu.RLock()
+	defer e.mu.RUnlock()
+	pop := e.p.Set.Pop()
+	f := e.p.Decay().Factor(e.p.Checkpoint().Watermark)
+	top := pop.Top(k)
+	out := make([]PopularItem, len(top))
+	for i, id := range top {
+		out[i] = PopularItem{Item: e.p.Dict.Name(id), Clicks: pop.Count(id) * f}
+	}
+	return out
+}
+
+// ForgetSession removes a visitor's session window; the next flush deletes
+// it from the store. It reports whether the session was tracked.
+func (e *Engine) ForgetSession(id string) bool {
+	return e.p.Tracker.Delete(id)
+}

@@ -1,0 +1,77 @@
+package session
+
+// Wire types of the HTTP API. Field names are the API; change them only
+// with a new version prefix.
+
+// nextBody is the body of POST /v1/next.
+type nextBody struct {
+	Items []string `json:"items"`
+	K     *int     `json:"k"`
+	Keep  bool     `json:"keep_session_items"`
+}
+
+// scoreBody is the body of POST /v1/score.
+type scoreBody struct {
+	Items      []string `json:"items"`
+	Candidates []string `json:"candidates"`
+}
+
+// ingestReply answers POST /v1/events and POST /v1/items.
+type ingestReply struct {
+	Accepted int          `json:"accepted"`
+	Rejected int          `json:"rejected"`
+	Errors   []lineReport `json:"errors"`
+	Error    *apiError    `json:"error,omitempty"`
+}
+
+type lineReport struct {
+	Line    int    `json:"line"`
+	Message string `json:"message"`
+}
+
+type neighborsReply struct {
+	Item      string     `json:"item"`
+	Known     bool       `json:"known"`
+	Neighbors []Neighbor `json:"neighbors"`
+}
+
+type popularReply struct {
+	Items []PopularItem `json:"items"`
+}
+
+type forgetReply struct {
+	Session string `json:"session"`
+	Tracked bool   `json:"tracked"`
+}
+
+// errorReply is every error body: {"error":{"code":"...","message":"..."}}.
+type errorReply struct {
+	Error apiError `json:"error"`
+}
+
+type apiError struct {
+	Code    string `json:"code"`
+	Message string `json:"message"`
+}
+
+// Error codes of the HTTP API, stable for clients to branch on.
+const (
+	// CodeInvalidJSON: the body is not the JSON the endpoint takes (400).
+	CodeInvalidJSON = "invalid_json"
+	// CodeInvalidParam: a parameter is out of range or malformed, for
+	// example k outside 1..1000 (400).
+	CodeInvalidParam = "invalid_parameter"
+	// CodeInvalidEvents: every event or record of a batch was rejected (400).
+	CodeInvalidEvents = "invalid_events"
+	// CodeBodyTooLarge: the body exceeds the 10 MiB limit (413).
+	CodeBodyTooLarge = "body_too_large"
+	// CodeNotFound: no such route (404).
+	CodeNotFound = "not_found"
+	// CodeMethodNotAllowed: the route exists with another method (405).
+	CodeMethodNotAllowed = "method_not_allowed"
+	// CodeUnavailable: the bus did not take the write, or the service is
+	// not ready (503).
+	CodeUnavailable = "unavailable"
+	// CodeInternal: a bug; the message says what failed (500).
+	CodeInternal = "internal"
+)

@@ -1,0 +1,208 @@
+package stream
+
+import (
+	"errors"
+	"fmt"
+	"log/slog"
+	"strings"
+	"time"
+
+	"github.com/nats-io/nats.go"
+	"github.com/prometheus/client_golang/prometheus"
+)
+
+// BusOptions configure the connection to NATS and the JetStream layout.
+type BusOptions struct {
+	URL       string // one or more comma-separated server URLs
+	CredsFile string // NATS credentials file (JWT + nkey), optional
+	// TLS client certificate and key (both or neither) and the CA that
+	// signed the server certificate, optional.
+	TLSCert, TLSKey, TLSCA string
+	Name                   string // client name shown by the server
+
+	Stream  string // events stream, default "WAYMARK"
+	Subject string // click events, default "waymark.events"
+	// CatalogSubject carries catalogue records, default "waymark.catalog". The
+	// events stream captures it too, so clicks and catalogue records share one
+	// ordered log and a replay sees an item's record before its first click
+	// when that is the order they happened in.
+	CatalogSubject string
+	// DeadLetterSubject gets copies of rejected messages, default
+	// "waymark.deadletter". It is captured by its own stream
+	// "<Stream>_DEADLETTER" (limits retention, DeadLetterMaxAge).
+	DeadLetterSubject string
+	DeadLetterMaxAge  time.Duration // default 7 days
+	Replicas          int           // stream replicas, default 1
+
+	// MaxAge and MaxBytes limit the events stream; 0 keeps everything. The
+	// log is the source of truth a new replica replays from, so limiting it
+	// is a deliberate choice (snapshots must cover what is dropped).
+	MaxAge   time.Duration
+	MaxBytes int64
+
+	// PublishWindow bounds the unacknowledged asynchronous publishes of one
+	// PublishEvents or PublishRaw call, default 4096.
+	PublishWindow int
+	// AckTimeout is how long a publish waits for its acknowledgement,
+	// default 30 s.
+	AckTimeout time.Duration
+	// ReconnectWait is the pause between reconnect attempts, default 2 s.
+	// The client reconnects forever.
+	ReconnectWait time.Duration
+
+	Logger     *slog.Logger          // nil discards
+	Registerer prometheus.Registerer // nil registers nothing
+}
+
+// DefaultBusOptions returns the defaults, connecting to a local server.
+func DefaultBusOptions() BusOptions {
+	return BusOptions{
+		URL:               nats.DefaultURL,
+		Name:              "waymark",
+		Stream:            "WAYMARK",
+		Subject:           "waymark.events",
+		CatalogSubject:    "waymark.catalog",
+		DeadLetterSubject: "waymark.deadletter",
+		DeadLetterMaxAge:  7 * 24 * time.Hour,
+		Replicas:          1,
+		PublishWindow:     4096,
+		AckTimeout:        30 * time.Second,
+		ReconnectWait:     2 * time.Second,
+	}
+}
+
+// DeadLetterStream is the name of the stream capturing DeadLetterSubject.
+func (o BusOptions) DeadLetterStream() string { return o.Stream + "_DEADLETTER" }
+
+// withDefaults fills zero values from DefaultBusOptions.
+func (o BusOptions) withDefaults() BusOptions {
+	d := DefaultBusOptions()
+	if o.URL == "" {
+		o.URL = d.URL
+	}
+	if o.Name == "" {
+		o.Name = d.Name
+	}
+	if o.Stream == "" {
+		o.Stream = d.Stream
+	}
+	if o.Subject == "" {
+		o.Subject = d.Subject
+	}
+	if o.CatalogSubject == "" {
+		o.CatalogSubject = d.CatalogSubject
+	}
+	if o.DeadLetterSubject == "" {
+		o.DeadLetterSubject = d.DeadLetterSubject
+	}
+	if o.DeadLetterMaxAge == 0 {
+		o.DeadLetterMaxAge = d.DeadLetterMaxAge
+	}
+	if o.Replicas == 0 {
+		o.Replicas = d.Replicas
+	}
+	if o.PublishWindow == 0 {
+		o.PublishWindow = d.PublishWindow
+	}
+	if o.AckTimeout == 0 {
+		o.AckTimeout = d.AckTimeout
+	}
+	if o.ReconnectWait == 0 {
+		o.ReconnectWait = d.ReconnectWait
+	}
+	return o
+}
+
+// validate reports every problem at once, each naming its field.
+func (o BusOptions) validate() error {
+	var errs []error
+	bad := func(field, format string, args ...any) {
+		errs = append(errs, fmt.Errorf("%s: "+format, append([]any{field}, args...)...))
+	}
+	if strings.TrimSpace(o.URL) == "" {
+		bad("URL", "empty")
+	}
+	if (o.TLSCert == "") != (o.TLSKey == "") {
+		bad("TLSCert", "TLSCert and TLSKey must be given together")
+	}
+	if err := checkStreamName(o.Stream); err != nil {
+		bad("Stream", "%v", err)
+	}
+	subjects := map[string]string{}
+	for _, s := range []struct{ field, subj string }{
+		{"Subject", o.Subject}, {"CatalogSubject", o.CatalogSubject}, {"DeadLetterSubject", o.DeadLetterSubject},
+	} {
+		if err := checkLiteralSubject(s.subj); err != nil {
+			bad(s.field, "%q: %v", s.subj, err)
+			continue
+		}
+		if prev, dup := subjects[s.subj]; dup {
+			bad(s.field, "%q is also %s; each needs its own subject", s.subj, prev)
+		}
+		subjects[s.subj] = s.field
+	}
+	if o.Replicas < 1 || o.Replicas > 5 {
+		bad("Replicas", "%d, must be 1..5", o.Replicas)
+	}
+	if o.DeadLetterMaxAge < 0 {
+		bad("DeadLetterMaxAge", "negative")
+	}
+	if o.MaxAge < 0 {
+		bad("MaxAge", "negative")
+	}
+	if o.MaxBytes < 0 {
+		bad("MaxBytes", "negative")
+	}
+	if o.PublishWindow < 1 {
+		bad("PublishWindow", "%d, must be at least 1", o.PublishWindow)
+	}
+	if o.AckTimeout < 0 {
+		bad("AckTimeout", "negative")
+	}
+	if o.ReconnectWait < 0 {
+		bad("ReconnectWait", "negative")
+	}
+	if len(errs) == 0 {
+		return nil
+	}
+	return fmt.Errorf("%w: bus: %w", ErrInvalidOptions, errors.Join(errs...))
+}
+
+// checkStreamName applies the server's rules for stream and consumer names:
+// no whitespace, dots, wildcards or path separators (names become file names).
+func checkStreamName(name string) error {
+	if name == "" {
+		return errors.New("empty")
+	}
+	if len(name) > 200 {
+		return errors.New("longer than 200 bytes")
+	}
+	if i := strings.IndexAny(name, " \t\r\n.*>/\\"); i >= 0 {
+		return fmt.Errorf("%q contains %q, not allowed in a name", name, name[i])
+	}
+	for _, r := range name {
+		if r < 0x20 || r == 0x7f {
+			return fmt.Errorf("%q contains a control character", name)
+		}
+	}
+	return nil
+}
+
+// checkLiteralSubject accepts a subject one can publish to: dot-separated
+// non-empty tokens without wildcards or whitespace.
+func checkLiteralSubject(s string) error {
+	if s == "" {
+		return errors.New("empty")
+	}
+	for _, tok := range strings.Split(s, ".") {
+		switch {
+		case tok == "":
+			return errors.New("empty token")
+		case tok == "*" || tok == ">":
+			return errors.New("wildcards are not allowed")
+		case strings.ContainsAny(tok, " \t\r\n"):
+			return errors.New("whitespace is not allowed")
+		}
+	}
+	return nil
+}
