@@ -278,16 +278,16 @@ func (e *Engine) Loaded() bool { return e.loaded.Load() }
 
 // Stats is a snapshot of the engine's counters.
 type Stats struct {
-	EventsApplied  uint64 `json:"events_applied"`
-	EventsRejected uint64 `json:"events_rejected"`
-	CatalogApplied uint64 `json:"catalog_applied"`
-	LastSequence   uint64 `json:"last_sequence"`
-	StreamLast     uint64 `json:"stream_last_sequence"`
-	Lag            uint64 `json:"consumer_lag"`
-	Items          int    `json:"items"`
-	SessionsActive int    `json:"sessions_active"`
-	Watermark      string `json:"event_time_watermark,omitempty"`
-	StoreBytes     int64  `json:"store_bytes"`
+	EventsApplied  uint64   `json:"events_applied"`
+	EventsRejected uint64   `json:"events_rejected"`
+	CatalogApplied uint64   `json:"catalog_applied"`
+	LastSequence   uint64   `json:"last_sequence"`
+	StreamLast     uint64   `json:"stream_last_sequence"`
+	Lag            uint64   `json:"consumer_lag"`
+	Items          int      `json:"items"`
+	SessionsActive int      `json:"sessions_active"`
+	Watermark      string   `json:"event_time_watermark,omitempty"`
+	StoreBytes     int64    `json:"store_bytes"`
 	Models         []string `json:"models"`
 }
 
