@@ -103,7 +103,7 @@ func TestPruneKeepsHeaviest(t *testing.T) {
 	}
 	// 5 entries > 2*cap=4: cut back to the 2 heaviest (ids 1 and 3).
 	if pt.get(0, 1) != 5 || pt.get(0, 3) != 4 || pt.size() != 2 {
-		t.Fatalf("row after prune: %v", pt.rows[0].m)
+		t.Fatalf("row after prune: %+v", pt.rows[0])
 	}
 }
 

@@ -18,10 +18,7 @@ type pairTable struct {
 	dirty []ItemID // rows changed since the last flush
 }
 
-type pairRow struct {
-	m     map[ItemID]float64
-	dirty bool
-}
+type pairRow = row
 
 func newPairTable(capPerRow int) *pairTable {
 	return &pairTable{cap: capPerRow}
@@ -38,16 +35,13 @@ func (t *pairTable) row(a ItemID) *pairRow {
 // add adds w to the pair a→b.
 func (t *pairTable) add(a, b ItemID, w float64) {
 	r := t.row(a)
-	if r.m == nil {
-		r.m = make(map[ItemID]float64, 4)
-	}
-	r.m[b] += w
+	r.add(b, w)
 	if !r.dirty {
 		r.dirty = true
 		t.dirty = append(t.dirty, a)
 	}
-	if t.cap > 0 && len(r.m) > 2*t.cap {
-		prune(r.m, t.cap)
+	if t.cap > 0 && r.n > 2*t.cap {
+		prune(r, t.cap)
 	}
 }
 
@@ -56,7 +50,7 @@ func (t *pairTable) get(a, b ItemID) float64 {
 	if int(a) >= len(t.rows) {
 		return 0
 	}
-	return t.rows[a].m[b]
+	return t.rows[a].get(b)
 }
 
 // each calls f for every pair of row a, in no particular order.
@@ -64,31 +58,28 @@ func (t *pairTable) each(a ItemID, f func(b ItemID, w float64)) {
 	if int(a) >= len(t.rows) {
 		return
 	}
-	for b, w := range t.rows[a].m {
-		f(b, w)
-	}
+	t.rows[a].each(f)
 }
 
 // size returns the number of pairs held.
 func (t *pairTable) size() int {
 	n := 0
 	for i := range t.rows {
-		n += len(t.rows[i].m)
+		n += t.rows[i].n
 	}
 	return n
 }
 
-// prune keeps the n heaviest entries of m, breaking ties by lower id.
-func prune(m map[ItemID]float64, n int) {
-	type kv struct {
-		k ItemID
-		v float64
-	}
-	all := make([]kv, 0, len(m))
-	for k, v := range m {
-		all = append(all, kv{k, v})
-	}
-	slices.SortFunc(all, func(a, b kv) int {
+type pairEntry struct {
+	k ItemID
+	v float64
+}
+
+// prune keeps the n heaviest entries of r, breaking ties by lower id.
+func prune(r *row, n int) {
+	all := make([]pairEntry, 0, r.n)
+	r.each(func(k ItemID, v float64) { all = append(all, pairEntry{k, v}) })
+	slices.SortFunc(all, func(a, b pairEntry) int {
 		switch {
 		case a.v > b.v:
 			return -1
@@ -101,8 +92,9 @@ func prune(m map[ItemID]float64, n int) {
 		}
 		return 0
 	})
-	for _, e := range all[n:] {
-		delete(m, e.k)
+	r.reset(n)
+	for _, e := range all[:n] {
+		r.add(e.k, e.v)
 	}
 }
 
@@ -113,15 +105,13 @@ func (t *pairTable) flush(kv KV, prefix string) error {
 	for _, a := range t.dirty {
 		r := &t.rows[a]
 		r.dirty = false
-		keys := make([]ItemID, 0, len(r.m))
-		for k := range r.m {
-			keys = append(keys, k)
-		}
-		slices.Sort(keys)
-		buf = make([]byte, 0, 12*len(keys))
-		for _, k := range keys {
-			buf = binary.BigEndian.AppendUint32(buf, k)
-			buf = binary.BigEndian.AppendUint64(buf, math.Float64bits(r.m[k]))
+		ents := make([]pairEntry, 0, r.n)
+		r.each(func(k ItemID, v float64) { ents = append(ents, pairEntry{k, v}) })
+		slices.SortFunc(ents, func(x, y pairEntry) int { return int(int64(x.k) - int64(y.k)) })
+		buf = make([]byte, 0, 12*len(ents))
+		for _, e := range ents {
+			buf = binary.BigEndian.AppendUint32(buf, e.k)
+			buf = binary.BigEndian.AppendUint64(buf, math.Float64bits(e.v))
 		}
 		if err := kv.Set(itemKey(prefix, a), buf); err != nil {
 			return fmt.Errorf("flush row %d: %w", a, err)
@@ -138,9 +128,9 @@ func (t *pairTable) load(key, val []byte) error {
 	}
 	a := binary.BigEndian.Uint32(key)
 	r := t.row(a)
-	r.m = make(map[ItemID]float64, len(val)/12)
+	r.reset(len(val) / 12)
 	for i := 0; i < len(val); i += 12 {
-		r.m[binary.BigEndian.Uint32(val[i:])] = math.Float64frombits(binary.BigEndian.Uint64(val[i+4:]))
+		r.add(binary.BigEndian.Uint32(val[i:]), math.Float64frombits(binary.BigEndian.Uint64(val[i+4:])))
 	}
 	return nil
 }
@@ -149,12 +139,10 @@ func (t *pairTable) load(key, val []byte) error {
 func (t *pairTable) rescale(f float64) {
 	for a := range t.rows {
 		r := &t.rows[a]
-		if len(r.m) == 0 {
+		if r.n == 0 {
 			continue
 		}
-		for k, v := range r.m {
-			r.m[k] = v * f
-		}
+		r.scale(f)
 		if !r.dirty {
 			r.dirty = true
 			t.dirty = append(t.dirty, ItemID(a))
