@@ -46,10 +46,10 @@ func TestMarkovAndSRWorked(t *testing.T) {
 	sr := NewSR(2, 0)
 	feed([]Model{mk, sr}, sessions)
 	tests := []struct {
-		name  string
-		m     Model
-		last  ItemID
-		want  map[ItemID]float64
+		name string
+		m    Model
+		last ItemID
+		want map[ItemID]float64
 	}{
 		{"markov a", mk, a, map[ItemID]float64{b: 2, c: 1}},
 		{"markov b", mk, b, map[ItemID]float64{c: 1, d: 1, a: 1}},
