@@ -3,6 +3,7 @@ package session
 import (
 	"bytes"
 	"context"
+	"crypto/subtle"
 	"encoding/json"
 	"errors"
 	"fmt"
@@ -35,6 +36,9 @@ type ServerOptions struct {
 	DefaultK int
 	// Ready reports readiness for /readyz with a reason when not ready.
 	Ready func() (bool, string)
+	// Token, when set, is the bearer token write and admin requests
+	// must carry (Authorization: Bearer <token>).
+	Token string
 	// Gatherer serves /metrics (nil: no metrics endpoint).
 	Gatherer   prometheus.Gatherer
 	Registerer prometheus.Registerer
@@ -82,12 +86,14 @@ func NewServer(eng *Engine, pub Publisher, opts ServerOptions) *Server {
 	if opts.Registerer != nil {
 		opts.Registerer.MustRegister(s.requests, s.rejected)
 	}
-	s.route("POST /v1/events", s.postEvents)
-	s.route("POST /v1/items", s.postItems)
+	s.route("POST /v1/events", s.guard(s.postEvents))
+	s.route("POST /v1/items", s.guard(s.postItems))
 	s.route("GET /v1/sessions/{id}/next", s.sessionNext)
-	s.route("DELETE /v1/sessions/{id}", s.forgetSession)
+	s.route("DELETE /v1/sessions/{id}", s.guard(s.forgetSession))
 	s.route("POST /v1/next", s.postNext)
 	s.route("POST /v1/score", s.postScore)
+	s.route("POST /v1/next/batch", s.postNextBatch)
+	s.route("POST /v1/score/batch", s.postScoreBatch)
 	s.route("GET /v1/items/{id}/neighbors", s.neighbors)
 	s.route("GET /v1/popular", s.popular)
 	s.route("GET /v1/stats", s.stats)
@@ -130,6 +136,23 @@ func (s *Server) route(pattern string, h http.HandlerFunc) {
 		r.Body = http.MaxBytesReader(sw, r.Body, s.opts.MaxBody)
 		h(sw, r)
 	})
+}
+
+// guard requires the bearer token on write and admin routes.
+func (s *Server) guard(h http.HandlerFunc) http.HandlerFunc {
+	if s.opts.Token == "" {
+		return h
+	}
+	want := []byte("Bearer " + s.opts.Token)
+	return func(w http.ResponseWriter, r *http.Request) {
+		got := []byte(r.Header.Get("Authorization"))
+		if subtle.ConstantTimeCompare(got, want) != 1 {
+			w.Header().Set("WWW-Authenticate", `Bearer realm="waymark"`)
+			writeError(w, http.StatusUnauthorized, CodeUnauthorized, "this endpoint needs Authorization: Bearer <token>")
+			return
+		}
+		h(w, r)
+	}
 }
 
 func writeJSON(w http.ResponseWriter, code int, v any) {
@@ -239,20 +262,20 @@ func (s *Server) postNext(w http.ResponseWriter, r *http.Request) {
 	if !s.decodeBody(w, r, &body) {
 		return
 	}
-	k, err := s.checkK(body.K)
-	if err != nil {
-		writeError(w, http.StatusBadRequest, CodeInvalidParam, err.Error())
+	res, aerr := s.doNext(body)
+	if aerr != nil {
+		writeAPIError(w, aerr)
 		return
 	}
-	if err := checkItems("items", body.Items); err != nil {
-		writeError(w, http.StatusBadRequest, CodeInvalidParam, err.Error())
-		return
-	}
-	writeJSON(w, http.StatusOK, s.eng.Next(NextRequest{Items: body.Items, K: k, Keep: body.Keep}))
+	writeJSON(w, http.StatusOK, res)
 }
 
-// maxListLen bounds items and candidates per request.
-const maxListLen = 10_000
+// maxListLen bounds items and candidates per request; maxBatch bounds the
+// requests of one batch.
+const (
+	maxListLen = 10_000
+	maxBatch   = 1_000
+)
 
 func checkItems(field string, items []string) error {
 	if len(items) > maxListLen {
@@ -266,20 +289,95 @@ func checkItems(field string, items []string) error {
 	return nil
 }
 
+// doNext validates and answers one next-items request; HTTP, batch and
+// NATS share it.
+func (s *Server) doNext(b nextBody) (NextResult, *apiError) {
+	k, err := s.checkK(b.K)
+	if err != nil {
+		return NextResult{}, badParam("%v", err)
+	}
+	if b.Session != "" {
+		if err := validID("session", b.Session, stream.MaxSessionBytes); err != nil {
+			return NextResult{}, badParam("%v", err)
+		}
+		if len(b.Items) > 0 {
+			return NextResult{}, badParam("give session or items, not both")
+		}
+	}
+	if err := checkItems("items", b.Items); err != nil {
+		return NextResult{}, badParam("%v", err)
+	}
+	return s.eng.Next(NextRequest{Session: b.Session, Items: b.Items, K: k, Keep: b.Keep}), nil
+}
+
+// doScore validates and answers one score request.
+func (s *Server) doScore(b scoreBody) (ScoreResult, *apiError) {
+	if err := checkItems("items", b.Items); err != nil {
+		return ScoreResult{}, badParam("%v", err)
+	}
+	if err := checkItems("candidates", b.Candidates); err != nil {
+		return ScoreResult{}, badParam("%v", err)
+	}
+	return s.eng.Score(ScoreRequest{Items: b.Items, Candidates: b.Candidates}), nil
+}
+
 func (s *Server) postScore(w http.ResponseWriter, r *http.Request) {
 	var body scoreBody
 	if !s.decodeBody(w, r, &body) {
 		return
 	}
-	if err := checkItems("items", body.Items); err != nil {
-		writeError(w, http.StatusBadRequest, CodeInvalidParam, err.Error())
+	res, aerr := s.doScore(body)
+	if aerr != nil {
+		writeAPIError(w, aerr)
 		return
 	}
-	if err := checkItems("candidates", body.Candidates); err != nil {
-		writeError(w, http.StatusBadRequest, CodeInvalidParam, err.Error())
+	writeJSON(w, http.StatusOK, res)
+}
+
+func (s *Server) postNextBatch(w http.ResponseWriter, r *http.Request) {
+	var body nextBatchBody
+	if !s.decodeBody(w, r, &body) {
 		return
 	}
-	writeJSON(w, http.StatusOK, s.eng.Score(ScoreRequest{Items: body.Items, Candidates: body.Candidates}))
+	if len(body.Requests) > maxBatch {
+		writeAPIError(w, badParam("requests: %d entries, at most %d", len(body.Requests), maxBatch))
+		return
+	}
+	rep := batchReply{Results: make([]batchEntry, len(body.Requests))}
+	for i, b := range body.Requests {
+		res, aerr := s.doNext(b)
+		if aerr != nil {
+			rep.Results[i].Error = aerr
+			continue
+		}
+		rep.Results[i].Result = res
+	}
+	writeJSON(w, http.StatusOK, rep)
+}
+
+func (s *Server) postScoreBatch(w http.ResponseWriter, r *http.Request) {
+	var body scoreBatchBody
+	if !s.decodeBody(w, r, &body) {
+		return
+	}
+	if len(body.Requests) > maxBatch {
+		writeAPIError(w, badParam("requests: %d entries, at most %d", len(body.Requests), maxBatch))
+		return
+	}
+	rep := batchReply{Results: make([]batchEntry, len(body.Requests))}
+	for i, b := range body.Requests {
+		res, aerr := s.doScore(b)
+		if aerr != nil {
+			rep.Results[i].Error = aerr
+			continue
+		}
+		rep.Results[i].Result = res
+	}
+	writeJSON(w, http.StatusOK, rep)
+}
+
+func writeAPIError(w http.ResponseWriter, e *apiError) {
+	writeError(w, e.status, e.Code, e.Message)
 }
 
 func (s *Server) neighbors(w http.ResponseWriter, r *http.Request) {

@@ -14,6 +14,7 @@ import (
 	"sync"
 	"time"
 
+	"github.com/nats-io/nats.go/micro"
 	"github.com/prometheus/client_golang/prometheus"
 	"github.com/prometheus/client_golang/prometheus/collectors"
 
@@ -40,8 +41,13 @@ type ServiceOptions struct {
 	// Batch and MaxAckPending tune the consumer (defaults 1000 and 100,000).
 	Batch         int
 	MaxAckPending int
-	Logger        *slog.Logger
+	// Token, when set, guards write and admin HTTP endpoints.
+	Token  string
+	Logger *slog.Logger
 }
+
+// Version is the service version reported to NATS service discovery.
+const Version = "0.1.0"
 
 // DefaultServiceOptions returns serve's defaults.
 func DefaultServiceOptions() ServiceOptions {
@@ -71,6 +77,7 @@ type Service struct {
 	bus      *stream.Bus
 	eng      *Engine
 	cons     *stream.Consumer
+	micro    micro.Service
 	http     *http.Server
 	httpAddr string
 	wg       sync.WaitGroup
@@ -162,8 +169,11 @@ func Open(ctx context.Context, opts ServiceOptions) (_ *Service, err error) {
 	s.wg.Add(1)
 	go s.pollStream(runCtx)
 	srv := NewServer(s.eng, busPublisher{s.bus}, ServerOptions{
-		Ready: s.ready, Gatherer: s.reg, Registerer: s.reg, Logger: opts.Logger,
+		Ready: s.ready, Gatherer: s.reg, Registerer: s.reg, Logger: opts.Logger, Token: opts.Token,
 	})
+	if s.micro, err = srv.AddNATSService(s.bus.Conn(), Version); err != nil {
+		return nil, err
+	}
 	ln, err := net.Listen("tcp", opts.HTTPAddr)
 	if err != nil {
 		return nil, fmt.Errorf("listen %s: %w", opts.HTTPAddr, err)
@@ -256,6 +266,9 @@ func (s *Service) Shutdown(ctx context.Context) error {
 		if err := s.http.Shutdown(ctx); err != nil {
 			errs = append(errs, fmt.Errorf("http shutdown: %w", err))
 		}
+	}
+	if s.micro != nil {
+		_ = s.micro.Stop()
 	}
 	if s.cons != nil {
 		s.cons.Stop()

@@ -1,13 +1,38 @@
 package session
 
+import "fmt"
+
 // Wire types of the HTTP API. Field names are the API; change them only
 // with a new version prefix.
 
-// nextBody is the body of POST /v1/next.
+// nextBody is the body of POST /v1/next, one entry of POST
+// /v1/next/batch, and the request of the NATS endpoint waymark.api.next.
+// Session names a tracked session; otherwise Items is the sequence.
 type nextBody struct {
-	Items []string `json:"items"`
-	K     *int     `json:"k"`
-	Keep  bool     `json:"keep_session_items"`
+	Session string   `json:"session,omitempty"`
+	Items   []string `json:"items"`
+	K       *int     `json:"k"`
+	Keep    bool     `json:"keep_session_items"`
+}
+
+// nextBatchBody is the body of POST /v1/next/batch.
+type nextBatchBody struct {
+	Requests []nextBody `json:"requests"`
+}
+
+// scoreBatchBody is the body of POST /v1/score/batch.
+type scoreBatchBody struct {
+	Requests []scoreBody `json:"requests"`
+}
+
+// batchEntry is one answer of a batch: the result or an error.
+type batchEntry struct {
+	Result any       `json:"result,omitempty"`
+	Error  *apiError `json:"error,omitempty"`
+}
+
+type batchReply struct {
+	Results []batchEntry `json:"results"`
 }
 
 // scoreBody is the body of POST /v1/score.
@@ -52,6 +77,11 @@ type errorReply struct {
 type apiError struct {
 	Code    string `json:"code"`
 	Message string `json:"message"`
+	status  int
+}
+
+func badParam(format string, a ...any) *apiError {
+	return &apiError{Code: CodeInvalidParam, Message: fmt.Sprintf(format, a...), status: 400}
 }
 
 // Error codes of the HTTP API, stable for clients to branch on.
@@ -63,6 +93,9 @@ const (
 	CodeInvalidParam = "invalid_parameter"
 	// CodeInvalidEvents: every event or record of a batch was rejected (400).
 	CodeInvalidEvents = "invalid_events"
+	// CodeUnauthorized: a write or admin request without the bearer
+	// token the server was started with (401).
+	CodeUnauthorized = "unauthorized"
 	// CodeBodyTooLarge: the body exceeds the 10 MiB limit (413).
 	CodeBodyTooLarge = "body_too_large"
 	// CodeNotFound: no such route (404).

@@ -44,6 +44,7 @@ type serveFlags struct {
 	flushEv  int
 	readyLag uint64
 	sync     bool
+	token    string
 	logLevel string
 }
 
@@ -77,6 +78,7 @@ func newServeFlags(name string, stderr io.Writer) *serveFlags {
 	fs.IntVar(&f.flushEv, "flush-events", d.Engine.FlushEvents, "flush after this many messages")
 	fs.Uint64Var(&f.readyLag, "ready-lag", d.ReadyLag, "consumer lag under which /readyz answers ready")
 	fs.BoolVar(&f.sync, "sync", false, "fsync every store commit (survives power loss, slower)")
+	fs.StringVar(&f.token, "auth-token", "", "bearer `token` required by write and admin endpoints (empty: none)")
 	fs.StringVar(&f.logLevel, "log-level", "info", "log `level`: debug, info, warn, error")
 	return f
 }
@@ -124,6 +126,7 @@ func (f *serveFlags) options(log *slog.Logger) (session.ServiceOptions, error) {
 		p.Models = append(p.Models, extra...)
 	}
 	o.Store.SyncWrites = f.sync
+	o.Token = f.token
 	o.Logger = log
 	return o, nil
 }
@@ -151,7 +154,7 @@ func runServe(ctx context.Context, args []string, stdout, stderr io.Writer) int 
 		fmt.Fprintln(stderr, "waymark serve:", err)
 		return 2
 	}
-	eff, _ := json.Marshal(flagconf.Effective(f.fs, "nats-creds", "nats-tls-key"))
+	eff, _ := json.Marshal(flagconf.Effective(f.fs, "nats-creds", "nats-tls-key", "auth-token"))
 	log.Info("effective config", "config", string(eff))
 	svc, err := session.Open(ctx, opts)
 	if err != nil {
