@@ -4,6 +4,7 @@ import (
 	"context"
 	"errors"
 	"fmt"
+	"io"
 	"log/slog"
 	"sync"
 	"sync/atomic"
@@ -100,6 +101,10 @@ type Engine struct {
 	// read lock. The tracker has locks of its own.
 	mu sync.RWMutex
 	p  *Pipeline
+
+	// flushMu keeps flushes and snapshots apart, so a snapshot holds
+	// exactly the state its checkpoint describes.
+	flushMu sync.Mutex
 
 	// Fields below belong to the consumer goroutine.
 	cp        store.Checkpoint // counters as of the last applied message
@@ -241,11 +246,13 @@ func (e *Engine) Flush(ctx context.Context) error {
 	cp := e.cp
 	// Flushing reads model state and clears dirty marks, both owned by
 	// this goroutine; queries only read, so a read lock suffices.
+	e.flushMu.Lock()
 	e.mu.RLock()
 	pc := e.p.Checkpoint()
 	cp.DecayRef, cp.Watermark, cp.Sessions, cp.Touches = pc.DecayRef, pc.Watermark, pc.Sessions, pc.Touches
 	err := e.st.Commit(func(tx *store.Txn) error { return e.p.Flush(tx, cp) })
 	e.mu.RUnlock()
+	e.flushMu.Unlock()
 	if err != nil {
 		return fmt.Errorf("flush at seq %d: %w", cp.Seq, err)
 	}
@@ -259,6 +266,30 @@ func (e *Engine) Flush(ctx context.Context) error {
 	}
 	e.pending, e.lastMsg, e.lastFlush = 0, nil, time.Now()
 	return nil
+}
+
+// Snapshot hands put a consistent snapshot of the stored state and the
+// stream sequence it includes. Flushes wait until put returns.
+func (e *Engine) Snapshot(put func(seq uint64, r io.Reader) error) error {
+	e.flushMu.Lock()
+	defer e.flushMu.Unlock()
+	cp, err := e.st.Checkpoint()
+	if err != nil {
+		return err
+	}
+	pr, pw := io.Pipe()
+	done := make(chan error, 1)
+	go func() {
+		err := e.st.Backup(pw)
+		pw.CloseWithError(err)
+		done <- err
+	}()
+	perr := put(cp.Seq, pr)
+	pr.CloseWithError(errors.New("snapshot reader closed"))
+	if berr := <-done; berr != nil && perr == nil {
+		return berr
+	}
+	return perr
 }
 
 // SetStreamLast records the stream's last sequence, for lag and readiness.

@@ -39,6 +39,9 @@ type ServerOptions struct {
 	// Token, when set, is the bearer token write and admin requests
 	// must carry (Authorization: Bearer <token>).
 	Token string
+	// Snapshot stores a snapshot for new replicas (nil: the admin
+	// endpoint answers 503).
+	Snapshot func(ctx context.Context) (stream.SnapshotInfo, error)
 	// Gatherer serves /metrics (nil: no metrics endpoint).
 	Gatherer   prometheus.Gatherer
 	Registerer prometheus.Registerer
@@ -97,6 +100,7 @@ func NewServer(eng *Engine, pub Publisher, opts ServerOptions) *Server {
 	s.route("GET /v1/items/{id}/neighbors", s.neighbors)
 	s.route("GET /v1/popular", s.popular)
 	s.route("GET /v1/stats", s.stats)
+	s.route("POST /v1/admin/snapshot", s.guard(s.snapshot))
 	s.route("GET /healthz", func(w http.ResponseWriter, r *http.Request) {
 		writeJSON(w, http.StatusOK, map[string]string{"status": "ok"})
 	})
@@ -411,6 +415,36 @@ func (s *Server) forgetSession(w http.ResponseWriter, r *http.Request) {
 		return
 	}
 	writeJSON(w, http.StatusOK, forgetReply{Session: id, Tracked: s.eng.ForgetSession(id)})
+}
+
+// snapshot stores a store snapshot in the NATS object store
+// (?to=bus, the default) or streams it to the caller (?to=download).
+func (s *Server) snapshot(w http.ResponseWriter, r *http.Request) {
+	switch to := r.URL.Query().Get("to"); to {
+	case "", "bus":
+		if s.opts.Snapshot == nil {
+			writeError(w, http.StatusServiceUnavailable, CodeUnavailable, "snapshots to the bus are not configured")
+			return
+		}
+		info, err := s.opts.Snapshot(r.Context())
+		if err != nil {
+			writeError(w, http.StatusInternalServerError, CodeInternal, "snapshot: "+err.Error())
+			return
+		}
+		writeJSON(w, http.StatusOK, map[string]any{"name": info.Name, "seq": info.Seq, "bytes": info.Bytes})
+	case "download":
+		err := s.eng.Snapshot(func(seq uint64, rd io.Reader) error {
+			w.Header().Set("Content-Type", "application/octet-stream")
+			w.Header().Set("Waymark-Seq", strconv.FormatUint(seq, 10))
+			_, err := io.Copy(w, rd)
+			return err
+		})
+		if err != nil {
+			s.opts.Logger.Warn("snapshot download failed", "err", err)
+		}
+	default:
+		writeError(w, http.StatusBadRequest, CodeInvalidParam, fmt.Sprintf("to=%q: must be bus or download", to))
+	}
 }
 
 func (s *Server) stats(w http.ResponseWriter, r *http.Request) {

@@ -6,6 +6,7 @@ import (
 	"encoding/hex"
 	"errors"
 	"fmt"
+	"io"
 	"log/slog"
 	"net"
 	"net/http"
@@ -42,8 +43,12 @@ type ServiceOptions struct {
 	Batch         int
 	MaxAckPending int
 	// Token, when set, guards write and admin HTTP endpoints.
-	Token  string
-	Logger *slog.Logger
+	Token string
+	// Bootstrap loads the newest snapshot from the NATS object store into
+	// an empty data folder before starting, so a new replica replays only
+	// what came after the snapshot.
+	Bootstrap bool
+	Logger    *slog.Logger
 }
 
 // Version is the service version reported to NATS service discovery.
@@ -145,6 +150,11 @@ func Open(ctx context.Context, opts ServiceOptions) (_ *Service, err error) {
 	if err := s.bus.EnsureStreams(ctx); err != nil {
 		return nil, err
 	}
+	if opts.Bootstrap {
+		if err := s.bootstrap(ctx); err != nil {
+			return nil, err
+		}
+	}
 	eo := opts.Engine
 	eo.Logger, eo.Registerer = opts.Logger, s.reg
 	eo.CatalogSubject = s.bus.Options().CatalogSubject
@@ -170,6 +180,7 @@ func Open(ctx context.Context, opts ServiceOptions) (_ *Service, err error) {
 	go s.pollStream(runCtx)
 	srv := NewServer(s.eng, busPublisher{s.bus}, ServerOptions{
 		Ready: s.ready, Gatherer: s.reg, Registerer: s.reg, Logger: opts.Logger, Token: opts.Token,
+		Snapshot: s.Snapshot,
 	})
 	if s.micro, err = srv.AddNATSService(s.bus.Conn(), Version); err != nil {
 		return nil, err
@@ -200,6 +211,45 @@ func Open(ctx context.Context, opts ServiceOptions) (_ *Service, err error) {
 	}()
 	s.log.Info("serving", "http", s.httpAddr, "nats", bo.URL, "consumer", "waymark-"+replica, "resume_seq", s.eng.ResumeSeq())
 	return s, nil
+}
+
+// bootstrap restores the newest snapshot into an empty store.
+func (s *Service) bootstrap(ctx context.Context) error {
+	cp, err := s.st.Checkpoint()
+	if err != nil {
+		return err
+	}
+	if cp.Seq > 0 {
+		s.log.Info("bootstrap skipped: the data folder already holds state", "seq", cp.Seq)
+		return nil
+	}
+	info, r, err := s.bus.LatestSnapshot(ctx)
+	if errors.Is(err, stream.ErrNoSnapshot) {
+		s.log.Warn("bootstrap: no snapshot in the object store; replaying the whole stream")
+		return nil
+	}
+	if err != nil {
+		return fmt.Errorf("bootstrap: %w", err)
+	}
+	defer r.Close()
+	start := time.Now()
+	if err := s.st.Restore(ctx, r); err != nil {
+		return fmt.Errorf("bootstrap from %s: %w", info.Name, err)
+	}
+	s.log.Info("bootstrapped from snapshot", "snapshot", info.Name, "seq", info.Seq, "bytes", info.Bytes, "took", time.Since(start).Round(time.Millisecond))
+	return nil
+}
+
+// Snapshot writes a consistent snapshot of the store to the NATS object
+// store, where replicas started with Bootstrap find it.
+func (s *Service) Snapshot(ctx context.Context) (stream.SnapshotInfo, error) {
+	var info stream.SnapshotInfo
+	err := s.eng.Snapshot(func(seq uint64, r io.Reader) error {
+		var err error
+		info, err = s.bus.PutSnapshot(ctx, seq, r)
+		return err
+	})
+	return info, err
 }
 
 func newReplicaID() string {

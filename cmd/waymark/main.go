@@ -7,6 +7,7 @@
 //	waymark serve   [flags]          run the service (embedded NATS by default)
 //	waymark send    [flags] FILE...  publish a click log to the bus
 //	waymark replay  [flags] FILE...  evaluate models offline on a click log
+//	waymark snapshot [flags]         snapshot a running service for new replicas
 //	waymark demo    [flags]          run an invented shop end to end
 //
 // Run "waymark COMMAND --help" for each command's flags.
@@ -32,6 +33,7 @@ func commands() []command {
 		{"serve", "run the service: learn from the bus, answer over HTTP", runServe},
 		{"send", "publish a click log (JSON lines or CSV, optionally gzip) to the bus", runSend},
 		{"replay", "evaluate models offline by replaying a click log", runReplay},
+		{"snapshot", "store a consistent snapshot of a running service for new replicas", runSnapshot},
 		{"demo", "run an invented shop end to end on the embedded default", runDemo},
 	}
 }

@@ -45,6 +45,7 @@ type serveFlags struct {
 	readyLag uint64
 	sync     bool
 	token    string
+	boot     bool
 	logLevel string
 }
 
@@ -79,6 +80,7 @@ func newServeFlags(name string, stderr io.Writer) *serveFlags {
 	fs.Uint64Var(&f.readyLag, "ready-lag", d.ReadyLag, "consumer lag under which /readyz answers ready")
 	fs.BoolVar(&f.sync, "sync", false, "fsync every store commit (survives power loss, slower)")
 	fs.StringVar(&f.token, "auth-token", "", "bearer `token` required by write and admin endpoints (empty: none)")
+	fs.BoolVar(&f.boot, "bootstrap", false, "start an empty data folder from the newest snapshot in the NATS object store")
 	fs.StringVar(&f.logLevel, "log-level", "info", "log `level`: debug, info, warn, error")
 	return f
 }
@@ -127,6 +129,7 @@ func (f *serveFlags) options(log *slog.Logger) (session.ServiceOptions, error) {
 	}
 	o.Store.SyncWrites = f.sync
 	o.Token = f.token
+	o.Bootstrap = f.boot
 	o.Logger = log
 	return o, nil
 }
