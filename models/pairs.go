@@ -98,21 +98,20 @@ func prune(r *row, n int) {
 	}
 }
 
-// flush writes each dirty row under prefix+bigEndian(src) as a sorted list
-// of (dst uint32, weight float64) pairs.
+// flush writes each dirty row under prefix+bigEndian(src) as a list of
+// (dst uint32, weight float64) pairs.
 func (t *pairTable) flush(kv KV, prefix string) error {
 	var buf []byte
 	for _, a := range t.dirty {
 		r := &t.rows[a]
 		r.dirty = false
-		ents := make([]pairEntry, 0, r.n)
-		r.each(func(k ItemID, v float64) { ents = append(ents, pairEntry{k, v}) })
-		slices.SortFunc(ents, func(x, y pairEntry) int { return int(int64(x.k) - int64(y.k)) })
-		buf = make([]byte, 0, 12*len(ents))
-		for _, e := range ents {
-			buf = binary.BigEndian.AppendUint32(buf, e.k)
-			buf = binary.BigEndian.AppendUint64(buf, math.Float64bits(e.v))
-		}
+		// Slot order is a deterministic function of the clicks, and
+		// nothing reads a row in order, so rows are written as they lie.
+		buf = make([]byte, 0, 12*r.n)
+		r.each(func(k ItemID, v float64) {
+			buf = binary.BigEndian.AppendUint32(buf, k)
+			buf = binary.BigEndian.AppendUint64(buf, math.Float64bits(v))
+		})
 		if err := kv.Set(itemKey(prefix, a), buf); err != nil {
 			return fmt.Errorf("flush row %d: %w", a, err)
 		}

@@ -23,9 +23,11 @@ type EngineOptions struct {
 	// Blend is the spec of the blend that answers queries (default
 	// "blend"). It is built alongside Pipeline.Models.
 	Blend string
-	// FlushInterval bounds the time between flushes (default 500ms).
+	// FlushInterval bounds the time between flushes (default 1s). A flush
+	// rewrites every neighbour row changed since the last one, so flushing
+	// less often writes less; a crash replays at most this much.
 	FlushInterval time.Duration
-	// FlushEvents flushes after this many applied messages (default 50,000).
+	// FlushEvents flushes after this many applied messages (default 200,000).
 	FlushEvents int
 	// CatalogSubject is the subject whose messages are catalogue records
 	// (default "waymark.catalog"); every other subject carries clicks.
@@ -39,8 +41,8 @@ func DefaultEngineOptions() EngineOptions {
 	return EngineOptions{
 		Pipeline:       DefaultPipelineOptions(),
 		Blend:          models.DefaultBlendSpec,
-		FlushInterval:  500 * time.Millisecond,
-		FlushEvents:    50_000,
+		FlushInterval:  time.Second,
+		FlushEvents:    200_000,
 		CatalogSubject: "waymark.catalog",
 	}
 }
@@ -110,6 +112,7 @@ type Engine struct {
 	cp        store.Checkpoint // counters as of the last applied message
 	pending   int              // messages applied since the last flush
 	lastMsg   *stream.Msg      // last message applied, acknowledged after the flush
+	commitErr error            // a failed background commit; guarded by flushMu
 	lastFlush time.Time
 
 	// Readable from any goroutine.
@@ -200,7 +203,8 @@ func (e *Engine) applyLocked(ctx context.Context, msgs []stream.Msg) {
 		}
 		e.cp.Seq = m.Seq
 		e.pending++
-		e.lastMsg = m
+		last := *m
+		e.lastMsg = &last
 	}
 	pc := e.p.Checkpoint()
 	e.cp.Applied, e.cp.Catalog = pc.Applied, pc.Catalog
@@ -236,36 +240,66 @@ func (e *Engine) applyOneLocked(m *stream.Msg) error {
 	return nil
 }
 
-// Flush commits everything applied since the last flush with the stream
-// position, then acknowledges the bus.
+// Flush encodes everything applied since the last flush, with the stream
+// position, and commits it in one transaction in the background; the bus is
+// acknowledged once the commit is durable. The next flush, a snapshot or
+// Sync waits for a commit in flight, and a failed commit is returned by the
+// next call, which stops the consumer.
 func (e *Engine) Flush(ctx context.Context) error {
 	if e.pending == 0 {
 		return nil
 	}
 	start := time.Now()
-	cp := e.cp
-	// Flushing reads model state and clears dirty marks, both owned by
-	// this goroutine; queries only read, so a read lock suffices.
+	// flushMu is held from here until the commit is done (the background
+	// goroutine unlocks it), so commits stay in order and snapshots see a
+	// quiet store.
 	e.flushMu.Lock()
+	if err := e.commitErr; err != nil {
+		e.flushMu.Unlock()
+		return err
+	}
+	cp := e.cp
+	b := new(store.Batch)
+	// Encoding reads model state and clears dirty marks, both owned by
+	// this goroutine; queries only read, so a read lock suffices.
 	e.mu.RLock()
 	pc := e.p.Checkpoint()
 	cp.DecayRef, cp.Watermark, cp.Sessions, cp.Touches = pc.DecayRef, pc.Watermark, pc.Sessions, pc.Touches
-	err := e.st.Commit(func(tx *store.Txn) error { return e.p.Flush(tx, cp) })
+	err := e.p.Flush(b, cp)
 	e.mu.RUnlock()
-	e.flushMu.Unlock()
 	if err != nil {
-		return fmt.Errorf("flush at seq %d: %w", cp.Seq, err)
+		e.flushMu.Unlock()
+		return fmt.Errorf("encode flush at seq %d: %w", cp.Seq, err)
 	}
-	e.met.flushSeconds.Observe(time.Since(start).Seconds())
-	if e.lastMsg != nil {
-		if err := e.lastMsg.AckAll(); err != nil && !errors.Is(err, stream.ErrNoAck) {
-			// The state is committed; a lost ack only means redelivery,
-			// which the sequence check skips.
-			e.log.Debug("ack failed", "seq", cp.Seq, "err", err)
-		}
-	}
+	last := e.lastMsg
 	e.pending, e.lastMsg, e.lastFlush = 0, nil, time.Now()
+	e.met.flushBytes.Observe(float64(b.Bytes()))
+	go func() {
+		defer e.flushMu.Unlock()
+		if err := e.st.CommitBatch(b); err != nil {
+			e.commitErr = fmt.Errorf("flush at seq %d: %w", cp.Seq, err)
+			return
+		}
+		e.met.flushSeconds.Observe(time.Since(start).Seconds())
+		if last != nil {
+			if err := last.AckAll(); err != nil && !errors.Is(err, stream.ErrNoAck) {
+				// The state is committed; a lost ack only means
+				// redelivery, which the sequence check skips.
+				e.log.Debug("ack failed", "seq", cp.Seq, "err", err)
+			}
+		}
+	}()
 	return nil
+}
+
+// Sync flushes and waits until everything applied is committed.
+func (e *Engine) Sync(ctx context.Context) error {
+	if err := e.Flush(ctx); err != nil {
+		return err
+	}
+	e.flushMu.Lock()
+	defer e.flushMu.Unlock()
+	return e.commitErr
 }
 
 // Snapshot hands put a consistent snapshot of the stored state and the

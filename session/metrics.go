@@ -13,6 +13,7 @@ type metrics struct {
 	rejected     prometheus.Counter
 	skipped      prometheus.Counter
 	flushSeconds prometheus.Histogram
+	flushBytes   prometheus.Histogram
 	query        *prometheus.HistogramVec
 }
 
@@ -31,6 +32,10 @@ func newMetrics(reg prometheus.Registerer, e *Engine) *metrics {
 			Name: "waymark_flush_seconds", Help: "Time to flush learned state to the store in one transaction.",
 			Buckets: prometheus.ExponentialBuckets(0.0005, 2, 15),
 		}),
+		flushBytes: prometheus.NewHistogram(prometheus.HistogramOpts{
+			Name: "waymark_flush_bytes", Help: "Key and value bytes of one flush.",
+			Buckets: prometheus.ExponentialBuckets(1024, 4, 10),
+		}),
 		query: prometheus.NewHistogramVec(prometheus.HistogramOpts{
 			Name: "waymark_query_seconds", Help: "Time to answer a query inside the engine, by endpoint and answering source.",
 			Buckets: prometheus.ExponentialBuckets(0.00001, 2, 16),
@@ -42,7 +47,7 @@ func newMetrics(reg prometheus.Registerer, e *Engine) *metrics {
 	gauge := func(name, help string, f func() float64) prometheus.Collector {
 		return prometheus.NewGaugeFunc(prometheus.GaugeOpts{Name: name, Help: help}, f)
 	}
-	reg.MustRegister(m.applied, m.rejected, m.skipped, m.flushSeconds, m.query,
+	reg.MustRegister(m.applied, m.rejected, m.skipped, m.flushSeconds, m.flushBytes, m.query,
 		gauge("waymark_consumer_lag_messages", "Stream messages not yet applied.", func() float64 { return float64(e.Lag()) }),
 		gauge("waymark_last_sequence", "Last stream sequence applied.", func() float64 { return float64(e.lastSeq.Load()) }),
 		gauge("waymark_sessions_tracked", "Sessions currently tracked.", func() float64 { return float64(e.p.Tracker.Len()) }),

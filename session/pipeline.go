@@ -219,7 +219,7 @@ func (p *Pipeline) SessionQuery(key string) (models.Query, bool) {
 
 // Flush writes everything changed since the last flush, and the
 // checkpoint cp (the caller sets its stream fields), into kv.
-func (p *Pipeline) Flush(tx *store.Txn, cp store.Checkpoint) error {
+func (p *Pipeline) Flush(tx store.KV, cp store.Checkpoint) error {
 	if err := p.Dict.Flush(tx); err != nil {
 		return err
 	}
@@ -234,7 +234,7 @@ func (p *Pipeline) Flush(tx *store.Txn, cp store.Checkpoint) error {
 		}
 	}
 	cp.Config = p.fingerprint()
-	return tx.PutCheckpoint(cp)
+	return store.PutCheckpoint(tx, cp)
 }
 
 // Load restores the pipeline from st. A store built with another model

@@ -39,7 +39,7 @@ type ServiceOptions struct {
 	// ReadyLag is the consumer lag under which /readyz answers ready
 	// (default 1000 messages).
 	ReadyLag uint64
-	// Batch and MaxAckPending tune the consumer (defaults 1000 and 100,000).
+	// Batch and MaxAckPending tune the consumer (defaults 1000 and 500,000).
 	Batch         int
 	MaxAckPending int
 	// Token, when set, guards write and admin HTTP endpoints.
@@ -67,7 +67,7 @@ func DefaultServiceOptions() ServiceOptions {
 		Store:         store.DefaultOptions(),
 		ReadyLag:      1000,
 		Batch:         1000,
-		MaxAckPending: 100_000,
+		MaxAckPending: 500_000,
 	}
 }
 
@@ -329,7 +329,7 @@ func (s *Service) Shutdown(ctx context.Context) error {
 	s.wg.Wait()
 	if s.eng != nil {
 		// The consumer has stopped: this goroutine now owns the engine.
-		if err := s.eng.Flush(ctx); err != nil {
+		if err := s.eng.Sync(ctx); err != nil {
 			errs = append(errs, err)
 		}
 	}

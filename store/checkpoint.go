@@ -31,13 +31,13 @@ type Checkpoint struct {
 var checkpointKey = []byte("x/checkpoint")
 var replicaKey = []byte("x/replica")
 
-// PutCheckpoint writes cp.
-func (t *Txn) PutCheckpoint(cp Checkpoint) error {
+// PutCheckpoint writes cp into kv (a transaction or a batch).
+func PutCheckpoint(kv KV, cp Checkpoint) error {
 	b, err := json.Marshal(cp)
 	if err != nil {
 		return fmt.Errorf("encode checkpoint: %w", err)
 	}
-	return t.Set(checkpointKey, b)
+	return kv.Set(checkpointKey, b)
 }
 
 // Checkpoint reads the stored checkpoint; a new store gives the zero value.

@@ -199,3 +199,54 @@ func (b badgerLogger) Infof(f string, a ...any) {
 	b.l.Debug(fmt.Sprintf(f, a...), "component", "badger")
 }
 func (b badgerLogger) Debugf(f string, a ...any) {}
+
+// Batch collects writes in memory to commit later in one transaction, so
+// the owner of the data can encode a flush quickly and go on working while
+// the commit runs.
+type Batch struct {
+	ops   []batchOp
+	bytes int
+}
+
+type batchOp struct {
+	key, val []byte
+	del      bool
+}
+
+// Set records key=val. The slices must not change until the commit.
+func (b *Batch) Set(key, val []byte) error {
+	b.ops = append(b.ops, batchOp{key: key, val: val})
+	b.bytes += len(key) + len(val)
+	return nil
+}
+
+// Delete records the removal of key.
+func (b *Batch) Delete(key []byte) error {
+	b.ops = append(b.ops, batchOp{key: key, del: true})
+	b.bytes += len(key)
+	return nil
+}
+
+// Len returns the number of writes recorded.
+func (b *Batch) Len() int { return len(b.ops) }
+
+// Bytes returns the key and value bytes recorded.
+func (b *Batch) Bytes() int { return b.bytes }
+
+// CommitBatch writes b in one transaction.
+func (s *Store) CommitBatch(b *Batch) error {
+	return s.Commit(func(tx *Txn) error {
+		for _, op := range b.ops {
+			var err error
+			if op.del {
+				err = tx.Delete(op.key)
+			} else {
+				err = tx.Set(op.key, op.val)
+			}
+			if err != nil {
+				return err
+			}
+		}
+		return nil
+	})
+}

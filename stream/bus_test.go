@@ -107,7 +107,11 @@ func (c *collector) handle(ctx context.Context, msgs []Msg) error {
 		return nil
 	}
 	c.msgs = append(c.msgs, msgs...)
-	return msgs[len(msgs)-1].AckAll()
+	last := msgs[len(msgs)-1]
+	if err := last.AckAll(); err != nil {
+		return err
+	}
+	return last.AckAll() // a second ack of the same message is a no-op
 }
 
 func (c *collector) count() int {

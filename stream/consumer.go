@@ -23,12 +23,17 @@ type Msg struct {
 
 // AckAll acknowledges this message and, under the AckAll policy, every
 // message before it. It does not wait for the server; a lost ack only means
-// a redelivery, which the consumer drops or the checkpoint skips.
+// a redelivery, which the consumer drops or the checkpoint skips. Acking the
+// same message again is a no-op, so a flush on a timer can re-ack the last
+// message it saw without checking.
 func (m Msg) AckAll() error {
 	if m.m == nil {
 		return ErrNoAck
 	}
-	return m.m.Ack()
+	if err := m.m.Ack(); err != nil && !errors.Is(err, jetstream.ErrMsgAlreadyAckd) {
+		return fmt.Errorf("ack %d: %w", m.Seq, err)
+	}
+	return nil
 }
 
 // AckAllSync is AckAll waiting for the server to confirm the ack, for callers
@@ -37,7 +42,10 @@ func (m Msg) AckAllSync(ctx context.Context) error {
 	if m.m == nil {
 		return ErrNoAck
 	}
-	return m.m.DoubleAck(ctx)
+	if err := m.m.DoubleAck(ctx); err != nil && !errors.Is(err, jetstream.ErrMsgAlreadyAckd) {
+		return fmt.Errorf("ack %d: %w", m.Seq, err)
+	}
+	return nil
 }
 
 // DecodeMsg decodes a click event from a message and sets its Seq.
@@ -54,7 +62,8 @@ func DecodeMsg(m Msg) (Event, error) {
 // It is also called with an empty slice when a fetch brings nothing (about
 // every MaxWait while idle, and between retries while the server is away), so
 // it can flush on a timer. A returned error stops the consumer; Err reports
-// it. The slice is the handler's to keep.
+// it. The slice is the handler's to keep. The handler must not call Stop or
+// Bus.Close itself: they wait for it to return.
 type Handler func(ctx context.Context, msgs []Msg) error
 
 // Consumer delivers the events stream to a Handler; see Bus.Consume.

@@ -112,11 +112,15 @@ type Event struct {
 
 // Validate reports the first problem with e. The error is a *FieldError
 // wrapping ErrInvalidEvent.
-func (e *Event) Validate() error {
-	if err := validateID("session", e.Session, MaxSessionBytes, true, ErrInvalidEvent); err != nil {
+func (e *Event) Validate() error { return e.validate(true) }
+
+// validate skips the per-byte character checks when chars is false, for
+// strings the fast decoder has already scanned.
+func (e *Event) validate(chars bool) error {
+	if err := validateID("session", e.Session, MaxSessionBytes, true, chars, ErrInvalidEvent); err != nil {
 		return err
 	}
-	if err := validateID("item", e.Item, MaxItemBytes, true, ErrInvalidEvent); err != nil {
+	if err := validateID("item", e.Item, MaxItemBytes, true, chars, ErrInvalidEvent); err != nil {
 		return err
 	}
 	switch {
@@ -130,14 +134,14 @@ func (e *Event) Validate() error {
 	if e.Kind >= numKinds {
 		return eventErr("kind", "unknown kind "+strconv.Itoa(int(e.Kind)))
 	}
-	return validateID("id", e.ID, MaxIDBytes, false, ErrInvalidEvent)
+	return validateID("id", e.ID, MaxIDBytes, false, chars, ErrInvalidEvent)
 }
 
 // validateID checks an identifier: length bounds, valid UTF-8 and no control
 // characters. Ids end up in logs, CSV exports and HTTP paths, where a newline
 // or a broken byte sequence does damage far from its source, so they are
 // refused at the door.
-func validateID(field, s string, max int, required bool, sentinel error) error {
+func validateID(field, s string, max int, required, chars bool, sentinel error) error {
 	mk := func(reason string) error { return &FieldError{Field: field, Reason: reason, Err: sentinel} }
 	if len(s) == 0 {
 		if required {
@@ -147,6 +151,9 @@ func validateID(field, s string, max int, required bool, sentinel error) error {
 	}
 	if len(s) > max {
 		return mk(strconv.Itoa(len(s)) + " bytes, more than the limit of " + strconv.Itoa(max))
+	}
+	if !chars {
+		return nil
 	}
 	hi := false
 	for i := 0; i < len(s); i++ {

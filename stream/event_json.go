@@ -30,7 +30,8 @@ func DecodeJSON(data []byte) (Event, error) {
 			return Event{}, err
 		}
 	}
-	if err := ev.Validate(); err != nil {
+	// Strings from the fast path have passed the character checks already.
+	if err := ev.validate(!ok); err != nil {
 		return Event{}, err
 	}
 	return ev, nil
@@ -101,13 +102,16 @@ func decodeFast(data []byte) (ev Event, ok bool) {
 			if i >= n || data[i] != '"' {
 				return ev, false
 			}
-			ks, ke, next, plain := scanPlainString(data, i)
-			if !plain {
-				return ev, false
-			}
-			field := fieldOf(data[ks:ke])
-			if field == fieldFallback {
-				return ev, false
+			field, next := matchKey(data, i)
+			if next == 0 {
+				ks, ke, n2, plain := scanPlainString(data, i)
+				if !plain {
+					return ev, false
+				}
+				if field = fieldOf(data[ks:ke]); field == fieldFallback {
+					return ev, false
+				}
+				next = n2
 			}
 			if field != fieldUnknown {
 				bit := uint8(1) << field
@@ -211,6 +215,38 @@ func decodeFast(data []byte) (ev Event, ok bool) {
 	return ev, true
 }
 
+// matchKey recognises the exact field names right after the opening quote
+// b[i], the common case, without a general string scan. next is 0 when the
+// key is something else.
+func matchKey(b []byte, i int) (field, next int) {
+	rest := b[i+1:]
+	if len(rest) < 3 {
+		return 0, 0
+	}
+	switch rest[0] {
+	case 's':
+		if len(rest) >= 8 && string(rest[:8]) == `session"` {
+			return fieldSession, i + 9
+		}
+	case 'i':
+		if string(rest[:3]) == `id"` {
+			return fieldID, i + 4
+		}
+		if len(rest) >= 5 && string(rest[:5]) == `item"` {
+			return fieldItem, i + 6
+		}
+	case 't':
+		if string(rest[:3]) == `ts"` {
+			return fieldTS, i + 4
+		}
+	case 'k':
+		if len(rest) >= 5 && string(rest[:5]) == `kind"` {
+			return fieldKind, i + 6
+		}
+	}
+	return 0, 0
+}
+
 // fieldOf maps a key to a field. Exact names are fields; ASCII keys that are
 // not a field name in any case are ignored, as encoding/json ignores them.
 // A key that equals a field name apart from case, or that has non-ASCII bytes
@@ -265,13 +301,15 @@ func skipWS(b []byte, i int) int {
 
 // scanPlainString scans a JSON string starting at the opening quote b[i].
 // It returns the content bounds and the index after the closing quote.
-// plain is false when the string has an escape, a control character or
-// invalid UTF-8 (encoding/json would unescape, reject or replace), or is
-// unterminated.
+// plain is false when the string has an escape, a control character, DEL or
+// invalid UTF-8 (encoding/json would unescape, reject or replace the first
+// three, and Validate refuses DEL), or is unterminated. A plain string
+// therefore already passes Validate's character checks.
 func scanPlainString(b []byte, i int) (start, end, next int, plain bool) {
 	start = i + 1
+	j := start + plainRun(b[start:])
 	var hi byte
-	for j := start; j < len(b); j++ {
+	for ; j < len(b); j++ {
 		c := b[j]
 		switch {
 		case c == '"':
@@ -279,7 +317,7 @@ func scanPlainString(b []byte, i int) (start, end, next int, plain bool) {
 				return 0, 0, 0, false
 			}
 			return start, j, j + 1, true
-		case c == '\\' || c < 0x20:
+		case c == '\\' || c < 0x20 || c == 0x7f:
 			return 0, 0, 0, false
 		}
 		hi |= c
@@ -316,7 +354,7 @@ func skipLiteral(b []byte, i int, lit string) (int, bool) {
 // skipString skips a JSON string with escapes. Invalid UTF-8 is allowed here
 // because encoding/json accepts it (and replaces it) in a value nobody reads.
 func skipString(b []byte, i int) (int, bool) {
-	for j := i + 1; j < len(b); j++ {
+	for j := i + 1 + skipRun(b[i+1:]); j < len(b); j++ {
 		switch c := b[j]; {
 		case c == '"':
 			return j + 1, true

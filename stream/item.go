@@ -2,6 +2,7 @@ package stream
 
 import (
 	"encoding/json"
+	"errors"
 	"math"
 	"slices"
 	"strconv"
@@ -50,6 +51,9 @@ func DecodeItemJSON(data []byte) (ItemRecord, error) {
 		return ItemRecord{}, jsonError(err, ErrInvalidItem)
 	}
 	r := ItemRecord{Item: w.Item, Vector: w.Vector, Available: w.Available}
+	if len(r.Vector) == 0 {
+		r.Vector = nil // "vector":[] says nothing; keep one representation of "none"
+	}
 	if len(w.Attrs) > MaxAttrs {
 		return ItemRecord{}, itemErr("attrs", strconv.Itoa(len(w.Attrs))+" keys, more than the limit of "+strconv.Itoa(MaxAttrs))
 	}
@@ -102,7 +106,7 @@ func decodeAttr(key string, raw json.RawMessage) ([]string, error) {
 // Validate reports the first problem with r as a *FieldError wrapping
 // ErrInvalidItem.
 func (r *ItemRecord) Validate() error {
-	if err := validateID("item", r.Item, MaxItemBytes, true, ErrInvalidItem); err != nil {
+	if err := validateID("item", r.Item, MaxItemBytes, true, true, ErrInvalidItem); err != nil {
 		return err
 	}
 	if len(r.Attrs) > MaxAttrs {
@@ -110,9 +114,13 @@ func (r *ItemRecord) Validate() error {
 	}
 	for k, vals := range r.Attrs {
 		field := "attrs." + truncate(k, 64)
-		if err := validateID("attrs", k, MaxAttrKeyBytes, true, ErrInvalidItem); err != nil {
-			var fe = err.(*FieldError)
-			return itemErr(field, "key "+fe.Reason)
+		if err := validateID("attrs", k, MaxAttrKeyBytes, true, true, ErrInvalidItem); err != nil {
+			reason := err.Error()
+			var fe *FieldError
+			if errors.As(err, &fe) {
+				reason = fe.Reason
+			}
+			return itemErr(field, "key "+reason)
 		}
 		if len(vals) > MaxAttrValues {
 			return itemErr(field, strconv.Itoa(len(vals))+" values, more than the limit of "+strconv.Itoa(MaxAttrValues))

@@ -30,7 +30,7 @@ func newBusMetrics(reg prometheus.Registerer) *busMetrics {
 		deadLetters:     c("waymark_bus_dead_letters_total", "Messages copied to the dead-letter subject."),
 		delivered:       c("waymark_bus_delivered_messages_total", "Messages handed to a consumer handler."),
 		redelivered:     c("waymark_bus_redelivered_skipped_total", "Redeliveries of messages a handler had already been given, dropped."),
-		fetchErrors:     c("waymark_bus_fetch_errors_total", "Failed fetches and consumer re-creations."),
+		fetchErrors:     c("waymark_bus_fetch_errors_total", "Fetches that failed and attempts to re-create a consumer that failed."),
 		recreations:     c("waymark_bus_consumer_recreations_total", "Times a consumer was re-created after an error or a gap in delivery."),
 		reconnects:      c("waymark_bus_reconnects_total", "Reconnections to the NATS server."),
 	}

@@ -7,6 +7,8 @@ import (
 	"fmt"
 	"io"
 	"log/slog"
+	"net/http"
+	"net/http/pprof"
 	"os"
 	"strings"
 	"time"
@@ -46,6 +48,7 @@ type serveFlags struct {
 	sync     bool
 	token    string
 	boot     bool
+	debug    string
 	logLevel string
 }
 
@@ -81,6 +84,7 @@ func newServeFlags(name string, stderr io.Writer) *serveFlags {
 	fs.BoolVar(&f.sync, "sync", false, "fsync every store commit (survives power loss, slower)")
 	fs.StringVar(&f.token, "auth-token", "", "bearer `token` required by write and admin endpoints (empty: none)")
 	fs.BoolVar(&f.boot, "bootstrap", false, "start an empty data folder from the newest snapshot in the NATS object store")
+	fs.StringVar(&f.debug, "debug-addr", "", "listen `address` for Go's pprof profiles (empty: off; keep it on loopback)")
 	fs.StringVar(&f.logLevel, "log-level", "info", "log `level`: debug, info, warn, error")
 	return f
 }
@@ -159,6 +163,15 @@ func runServe(ctx context.Context, args []string, stdout, stderr io.Writer) int 
 	}
 	eff, _ := json.Marshal(flagconf.Effective(f.fs, "nats-creds", "nats-tls-key", "auth-token"))
 	log.Info("effective config", "config", string(eff))
+	if f.debug != "" {
+		go func() {
+			mux := http.NewServeMux()
+			mux.HandleFunc("/debug/pprof/", pprof.Index)
+			mux.HandleFunc("/debug/pprof/profile", pprof.Profile)
+			srv := &http.Server{Addr: f.debug, Handler: mux, ReadHeaderTimeout: 10 * time.Second}
+			log.Info("pprof listening", "addr", f.debug, "err", srv.ListenAndServe())
+		}()
+	}
 	svc, err := session.Open(ctx, opts)
 	if err != nil {
 		log.Error("start failed", "err", err)
