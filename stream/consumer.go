@@ -176,15 +176,16 @@ func (c *Consumer) create(ctx context.Context, start uint64) error {
 	}
 	st := s.CachedInfo().State
 	cfg := jetstream.ConsumerConfig{
-		Durable:         name,
-		Description:     "waymark reader; its start is chosen by the reader's checkpoint",
-		AckPolicy:       jetstream.AckAllPolicy,
-		AckWait:         c.opts.AckWait,
-		MaxAckPending:   c.opts.MaxAckPending,
-		MaxDeliver:      -1,
-		ReplayPolicy:    jetstream.ReplayInstantPolicy,
-		FilterSubjects:  c.opts.FilterSubjects,
-		MaxRequestBatch: max(c.opts.Batch, 1),
+		Durable:           name,
+		Description:       "waymark reader; its start is chosen by the reader's checkpoint",
+		AckPolicy:         jetstream.AckAllPolicy,
+		AckWait:           c.opts.AckWait,
+		MaxAckPending:     c.opts.MaxAckPending,
+		MaxDeliver:        -1,
+		ReplayPolicy:      jetstream.ReplayInstantPolicy,
+		FilterSubjects:    c.opts.FilterSubjects,
+		MaxRequestBatch:   max(c.opts.Batch, 1),
+		InactiveThreshold: c.opts.InactiveThreshold,
 	}
 	if start <= 1 || start <= st.FirstSeq {
 		cfg.DeliverPolicy = jetstream.DeliverAllPolicy

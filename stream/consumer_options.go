@@ -26,6 +26,11 @@ type ConsumerOptions struct {
 	// default 30 s. Redeliveries of messages already handed over are dropped
 	// by the consumer, so a slow flush costs bandwidth, not correctness.
 	AckWait time.Duration
+	// InactiveThreshold lets the server delete the durable consumer after
+	// this long without a reader (default 72 h), so data folders that were
+	// thrown away leave no consumers behind. A reader that comes back later
+	// loses nothing: it re-creates its consumer from its own checkpoint.
+	InactiveThreshold time.Duration
 	// FilterSubjects restricts delivery to some of the stream's subjects;
 	// empty delivers everything (events and catalogue records).
 	FilterSubjects []string
@@ -34,10 +39,11 @@ type ConsumerOptions struct {
 // DefaultConsumerOptions returns the defaults (Name still to be set).
 func DefaultConsumerOptions() ConsumerOptions {
 	return ConsumerOptions{
-		Batch:         1000,
-		MaxWait:       100 * time.Millisecond,
-		MaxAckPending: 20000,
-		AckWait:       30 * time.Second,
+		Batch:             1000,
+		MaxWait:           100 * time.Millisecond,
+		MaxAckPending:     20000,
+		AckWait:           30 * time.Second,
+		InactiveThreshold: 72 * time.Hour,
 	}
 }
 
@@ -54,6 +60,9 @@ func (o ConsumerOptions) withDefaults() ConsumerOptions {
 	}
 	if o.AckWait == 0 {
 		o.AckWait = d.AckWait
+	}
+	if o.InactiveThreshold == 0 {
+		o.InactiveThreshold = d.InactiveThreshold
 	}
 	return o
 }
