@@ -22,6 +22,10 @@ type Observation struct {
 	// SessionNo numbers session instances in the order they started; a
 	// visitor who returns after the inactivity timeout gets a new number.
 	SessionNo uint64
+	// SessionHash is a 64-bit hash of the session's id (HashSession), so
+	// a model that keeps past sessions can forget a visitor on request
+	// without storing the id itself.
+	SessionHash uint64
 	// Repeat is true when Item equals the last item of Window; transition
 	// statistics skip such clicks (common practice).
 	Repeat bool
@@ -107,4 +111,20 @@ type ItemInfo struct {
 // CatalogLearner is a model that learns from catalogue records too.
 type CatalogLearner interface {
 	ObserveItem(info *ItemInfo)
+}
+
+// HashSession returns the FNV-1a 64-bit hash of a session id.
+func HashSession(id string) uint64 {
+	h := uint64(14695981039346656037)
+	for i := 0; i < len(id); i++ {
+		h ^= uint64(id[i])
+		h *= 1099511628211
+	}
+	return h
+}
+
+// Forgetter is a model that keeps per-session data and can delete a
+// visitor's sessions, identified by HashSession of their id.
+type Forgetter interface {
+	ForgetSession(hash uint64)
 }

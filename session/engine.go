@@ -30,8 +30,11 @@ type EngineOptions struct {
 	// FlushEvents flushes after this many applied messages (default 200,000).
 	FlushEvents int
 	// CatalogSubject is the subject whose messages are catalogue records
-	// (default "waymark.catalog"); every other subject carries clicks.
+	// (default "waymark.catalog"), ControlSubject the one of operator
+	// commands (default "waymark.control"); every other subject carries
+	// clicks.
 	CatalogSubject string
+	ControlSubject string
 	Logger         *slog.Logger
 	Registerer     prometheus.Registerer
 }
@@ -44,6 +47,7 @@ func DefaultEngineOptions() EngineOptions {
 		FlushInterval:  time.Second,
 		FlushEvents:    200_000,
 		CatalogSubject: "waymark.catalog",
+		ControlSubject: "waymark.control",
 	}
 }
 
@@ -60,6 +64,9 @@ func (o *EngineOptions) validate() error {
 	}
 	if o.CatalogSubject == "" {
 		o.CatalogSubject = d.CatalogSubject
+	}
+	if o.ControlSubject == "" {
+		o.ControlSubject = d.ControlSubject
 	}
 	if o.FlushInterval < time.Millisecond {
 		return fmt.Errorf("%w: FlushInterval %s below 1ms", ErrBadOption, o.FlushInterval)
@@ -222,7 +229,18 @@ func (e *Engine) applyLocked(ctx context.Context, msgs []stream.Msg) {
 }
 
 func (e *Engine) applyOneLocked(m *stream.Msg) error {
-	if m.Subject == e.opts.CatalogSubject {
+	switch m.Subject {
+	case e.opts.ControlSubject:
+		c, err := stream.DecodeControl(m.Data)
+		if err != nil {
+			return err
+		}
+		if c.Forget != "" {
+			e.p.Forget(c.Forget)
+			e.log.Info("forgot a session", "seq", m.Seq)
+		}
+		return nil
+	case e.opts.CatalogSubject:
 		rec, err := stream.DecodeItemJSON(m.Data)
 		if err != nil {
 			return err

@@ -24,6 +24,7 @@ import (
 type Publisher interface {
 	PublishEvents(ctx context.Context, evs []stream.Event) error
 	PublishItems(ctx context.Context, recs []stream.ItemRecord) error
+	PublishControl(ctx context.Context, c stream.Control) (uint64, error)
 }
 
 // ServerOptions configures the HTTP API.
@@ -408,13 +409,27 @@ func (s *Server) popular(w http.ResponseWriter, r *http.Request) {
 	writeJSON(w, http.StatusOK, popularReply{Items: s.eng.Popular(k)})
 }
 
+// forgetSession publishes a forget command to the log, so every replica
+// deletes the session at the same point; it answers 202 with the command's
+// sequence. Without a bus it forgets locally.
 func (s *Server) forgetSession(w http.ResponseWriter, r *http.Request) {
 	id := r.PathValue("id")
 	if err := validID("session", id, stream.MaxSessionBytes); err != nil {
 		writeError(w, http.StatusBadRequest, CodeInvalidParam, err.Error())
 		return
 	}
-	writeJSON(w, http.StatusOK, forgetReply{Session: id, Tracked: s.eng.ForgetSession(id)})
+	if s.pub == nil {
+		writeJSON(w, http.StatusOK, forgetReply{Session: id, Tracked: s.eng.ForgetSession(id)})
+		return
+	}
+	ctx, cancel := context.WithTimeout(r.Context(), 10*time.Second)
+	defer cancel()
+	seq, err := s.pub.PublishControl(ctx, stream.Control{Forget: id})
+	if err != nil {
+		writeError(w, http.StatusServiceUnavailable, CodeUnavailable, "publish to the bus: "+err.Error())
+		return
+	}
+	writeJSON(w, http.StatusAccepted, forgetReply{Session: id, Seq: seq})
 }
 
 // snapshot stores a store snapshot in the NATS object store

@@ -138,13 +138,14 @@ func (p *Pipeline) Apply(ev *stream.Event) {
 	c := p.Tracker.Observe(ev.Session, item, ev.TS, p.cp.Touches, p.nextSession, p.buf)
 	p.buf = c.Window[:0]
 	o := models.Observation{
-		Window:    c.Window,
-		Item:      item,
-		TS:        ev.TS,
-		Kind:      uint8(ev.Kind),
-		SessionNo: c.No,
-		Repeat:    c.Repeat,
-		Weight:    p.decay.Weight(ev.TS),
+		Window:      c.Window,
+		Item:        item,
+		TS:          ev.TS,
+		Kind:        uint8(ev.Kind),
+		SessionNo:   c.No,
+		SessionHash: models.HashSession(ev.Session),
+		Repeat:      c.Repeat,
+		Weight:      p.decay.Weight(ev.TS),
 	}
 	for _, m := range p.learners {
 		m.Observe(&o)
@@ -306,4 +307,17 @@ func (p *Pipeline) ApplyItem(rec *stream.ItemRecord, ts int64) {
 		}
 	}
 	p.cp.Catalog++
+}
+
+// Forget deletes a session everywhere: its window in the tracker and
+// whatever a model keeps about its past instances. It is applied from the
+// log, so every replica forgets at the same point.
+func (p *Pipeline) Forget(session string) {
+	p.Tracker.Delete(session)
+	h := models.HashSession(session)
+	for _, m := range p.learners {
+		if f, ok := m.(models.Forgetter); ok {
+			f.ForgetSession(h)
+		}
+	}
 }

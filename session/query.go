@@ -192,8 +192,13 @@ func (e *Engine) Popular(k int) []PopularItem {
 	return out
 }
 
-// ForgetSession removes a visitor's session window; the next flush deletes
-// it from the store. It reports whether the session was tracked.
+// ForgetSession deletes a visitor's session data at once, on this replica
+// only (serve goes through the log instead); the next flush deletes it from
+// the store. It reports whether the session was tracked.
 func (e *Engine) ForgetSession(id string) bool {
-	return e.p.Tracker.Delete(id)
+	_, tracked := e.p.SessionQuery(id)
+	e.mu.Lock()
+	e.p.Forget(id)
+	e.mu.Unlock()
+	return tracked
 }

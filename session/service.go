@@ -158,6 +158,7 @@ func Open(ctx context.Context, opts ServiceOptions) (_ *Service, err error) {
 	eo := opts.Engine
 	eo.Logger, eo.Registerer = opts.Logger, s.reg
 	eo.CatalogSubject = s.bus.Options().CatalogSubject
+	eo.ControlSubject = s.bus.Options().ControlSubject
 	if s.eng, err = NewEngine(ctx, s.st, s.bus, eo); err != nil {
 		return nil, err
 	}
@@ -354,6 +355,10 @@ type busPublisher struct{ b *stream.Bus }
 
 func (p busPublisher) PublishEvents(ctx context.Context, evs []stream.Event) error {
 	return p.b.PublishEvents(ctx, evs)
+}
+
+func (p busPublisher) PublishControl(ctx context.Context, c stream.Control) (uint64, error) {
+	return p.b.PublishControl(ctx, c)
 }
 
 func (p busPublisher) PublishItems(ctx context.Context, recs []stream.ItemRecord) error {

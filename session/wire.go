@@ -64,9 +64,12 @@ type popularReply struct {
 	Items []PopularItem `json:"items"`
 }
 
+// forgetReply answers DELETE /v1/sessions/{id}: Seq is the log position
+// at which every replica forgets the session.
 type forgetReply struct {
 	Session string `json:"session"`
-	Tracked bool   `json:"tracked"`
+	Seq     uint64 `json:"seq,omitempty"`
+	Tracked bool   `json:"tracked,omitempty"`
 }
 
 // errorReply is every error body: {"error":{"code":"...","message":"..."}}.

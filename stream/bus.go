@@ -118,7 +118,7 @@ func (b *Bus) EnsureStreams(ctx context.Context) error {
 	events := jetstream.StreamConfig{
 		Name:        o.Stream,
 		Description: "waymark click events and catalogue records",
-		Subjects:    []string{o.Subject, o.CatalogSubject},
+		Subjects:    []string{o.Subject, o.CatalogSubject, o.ControlSubject},
 		Retention:   jetstream.LimitsPolicy,
 		Storage:     jetstream.FileStorage,
 		Discard:     jetstream.DiscardOld,

@@ -27,6 +27,10 @@ type BusOptions struct {
 	// ordered log and a replay sees an item's record before its first click
 	// when that is the order they happened in.
 	CatalogSubject string
+	// ControlSubject carries operator commands that every replica must
+	// apply at the same point of the log, such as forgetting a visitor's
+	// session; default "waymark.control", captured by the events stream.
+	ControlSubject string
 	// DeadLetterSubject gets copies of rejected messages, default
 	// "waymark.deadletter". It is captured by its own stream
 	// "<Stream>_DEADLETTER" (limits retention, DeadLetterMaxAge).
@@ -62,6 +66,7 @@ func DefaultBusOptions() BusOptions {
 		Stream:            "WAYMARK",
 		Subject:           "waymark.events",
 		CatalogSubject:    "waymark.catalog",
+		ControlSubject:    "waymark.control",
 		DeadLetterSubject: "waymark.deadletter",
 		DeadLetterMaxAge:  7 * 24 * time.Hour,
 		Replicas:          1,
@@ -91,6 +96,9 @@ func (o BusOptions) withDefaults() BusOptions {
 	}
 	if o.CatalogSubject == "" {
 		o.CatalogSubject = d.CatalogSubject
+	}
+	if o.ControlSubject == "" {
+		o.ControlSubject = d.ControlSubject
 	}
 	if o.DeadLetterSubject == "" {
 		o.DeadLetterSubject = d.DeadLetterSubject
@@ -130,7 +138,7 @@ func (o BusOptions) validate() error {
 	}
 	subjects := map[string]string{}
 	for _, s := range []struct{ field, subj string }{
-		{"Subject", o.Subject}, {"CatalogSubject", o.CatalogSubject}, {"DeadLetterSubject", o.DeadLetterSubject},
+		{"Subject", o.Subject}, {"CatalogSubject", o.CatalogSubject}, {"ControlSubject", o.ControlSubject}, {"DeadLetterSubject", o.DeadLetterSubject},
 	} {
 		if err := checkLiteralSubject(s.subj); err != nil {
 			bad(s.field, "%q: %v", s.subj, err)
