@@ -5,6 +5,7 @@ import (
 	"fmt"
 	"log/slog"
 	"net"
+	"net/url"
 	"strconv"
 	"sync"
 	"time"
@@ -22,6 +23,19 @@ type ServerOptions struct {
 	Listen string
 	// Logger receives the server's log lines; nil discards them.
 	Logger *slog.Logger
+	// Name is the server's name (default "waymark"); servers of one
+	// cluster need distinct names.
+	Name string
+	// Cluster, when set, joins the server to a JetStream cluster.
+	Cluster *ClusterOptions
+}
+
+// ClusterOptions make an embedded server one node of a NATS cluster, as in
+// tests of scale-out on loopback; production clusters are real NATS servers.
+type ClusterOptions struct {
+	Name   string   // cluster name, the same on every node
+	Listen string   // host:port for routes from other nodes
+	Routes []string // nats-route://host:port of every node (this one may be included)
 }
 
 // DefaultServerListen is where the embedded server listens unless told
@@ -66,17 +80,39 @@ func StartServer(ctx context.Context, opts ServerOptions) (*Server, error) {
 	if log == nil {
 		log = slog.New(slog.DiscardHandler)
 	}
-	ns, err := server.NewServer(&server.Options{
-		ServerName: "waymark",
+	name := opts.Name
+	if name == "" {
+		name = "waymark"
+	}
+	so := &server.Options{
+		ServerName: name,
 		Host:       host,
 		Port:       port,
 		JetStream:  true,
 		StoreDir:   opts.Dir,
 		NoSigs:     true, // the process owns signals, not the library
-		// HTTP monitoring, clustering and leafnodes stay off: the embedded
-		// server is the single-process default, a real deployment brings its
-		// own NATS.
-	})
+		// HTTP monitoring and leafnodes stay off: the embedded server is the
+		// single-process default, a real deployment brings its own NATS.
+	}
+	if c := opts.Cluster; c != nil {
+		ch, cp, err := net.SplitHostPort(c.Listen)
+		if err != nil {
+			return nil, fmt.Errorf("%w: server: Cluster.Listen %q: %w", ErrInvalidOptions, c.Listen, err)
+		}
+		cport, err := strconv.Atoi(cp)
+		if err != nil {
+			return nil, fmt.Errorf("%w: server: Cluster.Listen %q: bad port", ErrInvalidOptions, c.Listen)
+		}
+		so.Cluster = server.ClusterOpts{Name: c.Name, Host: ch, Port: cport}
+		for _, r := range c.Routes {
+			u, err := url.Parse(r)
+			if err != nil {
+				return nil, fmt.Errorf("%w: server: route %q: %w", ErrInvalidOptions, r, err)
+			}
+			so.Routes = append(so.Routes, u)
+		}
+	}
+	ns, err := server.NewServer(so)
 	if err != nil {
 		return nil, fmt.Errorf("start nats server: %w", err)
 	}
