@@ -43,10 +43,62 @@ type Signal struct {
 // more signal with a small weight and fills the list when the others have
 // too few candidates; when no other signal has any (an empty session, or
 // only unknown items) the answer comes from popularity alone.
+//
+// Content back-off: a content signal (a [Content] model) speaks for pairs
+// that clicks cannot yet judge. For the session's last item a and a
+// candidate c its weight is
+//
+//	w_content · n0 / (n0 + min(n_a, n_c))
+//
+// where n_x is x's decayed click count at query time (from popularity) and
+// n0 the back-off constant (DefaultContentBackoff). A pair with a new item
+// on either side gets the full content weight, so an unclicked item is
+// shown beside the items it resembles and a session ending on it gets its
+// look-alikes; as both items gather clicks the collaborative signals, whose
+// weights stay fixed, take over. With n0 = 10, an item with 10 clicks gets
+// half the content weight and one with 90 a tenth.
+//
+// Availability: with a [Catalog] attached (a blend built by a [Set] always
+// has one) items the catalogue marks unavailable never appear in
+// Candidates, Recommend or Explain, and popularity fills past them.
 type Blend struct {
 	signals []Signal
 	pop     *Pop
 	popW    float64
+	cat     *Catalog // nil: every item is available
+	backoff float64  // n0 of the content back-off; 0: none
+}
+
+// DefaultContentBackoff is n0 of the content back-off: the decayed click
+// count at which content keeps half its weight (chosen here; replay tunes
+// it).
+const DefaultContentBackoff = 10
+
+// setColdStart attaches the catalogue used for availability and the
+// content back-off constant n0 (0 turns the back-off off).
+func (b *Blend) setColdStart(cat *Catalog, n0 float64) {
+	b.cat, b.backoff = cat, n0
+}
+
+// available reports whether id may be recommended.
+func (b *Blend) available(id ItemID) bool { return b.cat == nil || b.cat.Available(id) }
+
+// contentFactor returns a signal's weight multiplier for candidate id: the
+// back-off for a content signal, 1 otherwise.
+func (b *Blend) contentFactor(s *Signal, q *Query, id ItemID) float64 {
+	if b.backoff <= 0 {
+		return 1
+	}
+	if _, ok := s.Model.(*Content); !ok {
+		return 1
+	}
+	last, ok := q.Last()
+	if !ok {
+		return 1
+	}
+	n := min(b.pop.Count(last), b.pop.Count(id))
+	n = b.cat.decayed(n, q.Now)
+	return b.backoff / (b.backoff + n)
 }
 
 // DefaultPopWeight is popularity's weight in the default blend: enough to
@@ -104,7 +156,8 @@ func (b *Blend) blend(q *Query, popN int, out Scores, feats map[ItemID][]float64
 	nf := len(b.signals) + 1
 	collab := false
 	part := make(Scores)
-	for si, s := range b.signals {
+	for si := range b.signals {
+		s := &b.signals[si]
 		clear(part)
 		s.Model.Candidates(q, part)
 		mx := maxScore(part)
@@ -114,7 +167,7 @@ func (b *Blend) blend(q *Query, popN int, out Scores, feats map[ItemID][]float64
 		collab = true
 		for id, v := range part {
 			f := v / mx
-			out[id] += s.Weight * f
+			out[id] += s.Weight * b.contentFactor(s, q, id) * f
 			if feats != nil {
 				fv := feats[id]
 				if fv == nil {
@@ -125,7 +178,29 @@ func (b *Blend) blend(q *Query, popN int, out Scores, feats map[ItemID][]float64
 			}
 		}
 	}
-	top := b.pop.Top(popN)
+	// Unavailable items leave before popularity fills, so the fill
+	// counts only items that can be shown.
+	for id := range out {
+		if !b.available(id) {
+			delete(out, id)
+			delete(feats, id)
+		}
+	}
+	top := b.pop.Top(popTopN)
+	if b.cat != nil {
+		avail := make([]ItemID, 0, popN)
+		for _, id := range top {
+			if len(avail) == popN {
+				break
+			}
+			if b.cat.Available(id) {
+				avail = append(avail, id)
+			}
+		}
+		top = avail
+	} else if len(top) > popN {
+		top = top[:popN]
+	}
 	if len(top) == 0 {
 		return collab
 	}
@@ -211,7 +286,8 @@ func (b *Blend) Score(q *Query, items []ItemID) []ScoreRow {
 	for i := range rows {
 		rows[i].Features = make([]float64, nf)
 	}
-	for si, s := range b.signals {
+	for si := range b.signals {
+		s := &b.signals[si]
 		clear(part)
 		s.Model.Candidates(q, part)
 		mx := maxScore(part)
@@ -225,7 +301,7 @@ func (b *Blend) Score(q *Query, items []ItemID) []ScoreRow {
 		for i, v := range raw {
 			f := v / mx
 			rows[i].Features[si] = f
-			rows[i].Score += s.Weight * f
+			rows[i].Score += s.Weight * b.contentFactor(s, q, items[i]) * f
 		}
 	}
 	if top := b.pop.Top(1); len(top) == 1 {

@@ -109,7 +109,8 @@ type SessionIndex struct {
 
 type sessRec struct {
 	items []ItemID
-	last  int64 // latest click, event time ms
+	last  int64  // latest click, event time ms
+	hash  uint64 // HashSession of the visitor's id, to forget on request
 	dirty bool
 }
 
@@ -145,11 +146,11 @@ func (x *SessionIndex) Observe(o *Observation) {
 		x.maxTS = o.TS
 		x.metaDirty = true
 	}
-	x.add(o.SessionNo, o.Item, o.TS)
+	x.add(o.SessionNo, o.SessionHash, o.Item, o.TS)
 	x.evict()
 }
 
-func (x *SessionIndex) add(no uint64, item ItemID, ts int64) {
+func (x *SessionIndex) add(no, hash uint64, item ItemID, ts int64) {
 	if no < x.base {
 		return
 	}
@@ -173,6 +174,7 @@ func (x *SessionIndex) add(no uint64, item ItemID, ts int64) {
 	r := &x.ring[idx]
 	if r.items == nil {
 		x.live++
+		r.hash = hash
 	}
 	if ts > r.last {
 		r.last = ts
@@ -267,6 +269,31 @@ func (x *SessionIndex) popFront() {
 	x.metaDirty = true
 }
 
+// ForgetSession deletes every stored session of the visitor whose id
+// hashes to hash ([HashSession]): from the sessions, the posting lists and,
+// at the next flush, the store. It scans the stored sessions, which is
+// fine for a request that comes from the log now and then.
+func (x *SessionIndex) ForgetSession(hash uint64) {
+	for i := range x.ring {
+		r := &x.ring[i]
+		if r.items == nil || r.hash != hash {
+			continue
+		}
+		no := x.base + uint64(i)
+		for _, it := range r.items {
+			x.df[it]--
+			l := x.post[it]
+			if j, ok := slices.BinarySearch(l, no); ok {
+				x.post[it] = slices.Delete(l, j, j+1)
+			}
+		}
+		x.live--
+		x.gone = append(x.gone, no)
+		*r = sessRec{}
+	}
+	x.evict() // keeps the front slot non-empty
+}
+
 // session returns the stored session no, or nil.
 func (x *SessionIndex) session(no uint64) *sessRec {
 	if no < x.base || no-x.base >= uint64(len(x.ring)) {
@@ -314,8 +341,8 @@ func (x *SessionIndex) SetPrefix(prefix string) { x.prefix = prefix }
 func (x *SessionIndex) Prefix() string          { return x.prefix }
 
 // Storage: prefix+"m" holds base and the newest click time (16 bytes);
-// prefix+"s/"+bigEndian(no) holds a session: last click time (8 bytes)
-// then its items (4 bytes each). A flush writes the sessions that changed
+// prefix+"s/"+bigEndian(no) holds a session: last click time (8 bytes),
+// the visitor's id hash (8 bytes), then its items (4 bytes each). A flush writes the sessions that changed
 // and deletes the ones evicted.
 func (x *SessionIndex) Flush(kv KV) error {
 	if x.metaDirty {
@@ -338,8 +365,9 @@ func (x *SessionIndex) Flush(kv KV) error {
 			continue // evicted since: deleted above
 		}
 		r.dirty = false
-		b := make([]byte, 0, 8+4*len(r.items))
+		b := make([]byte, 0, 16+4*len(r.items))
 		b = binary.BigEndian.AppendUint64(b, uint64(r.last))
+		b = binary.BigEndian.AppendUint64(b, r.hash)
 		for _, it := range r.items {
 			b = binary.BigEndian.AppendUint32(b, it)
 		}
@@ -367,20 +395,20 @@ func (x *SessionIndex) Load(key, val []byte) error {
 		x.base = binary.BigEndian.Uint64(val)
 		x.maxTS = int64(binary.BigEndian.Uint64(val[8:]))
 		return nil
-	case len(k) == 10 && k[0] == 's' && k[1] == '/' && len(val) >= 8 && (len(val)-8)%4 == 0:
+	case len(k) == 10 && k[0] == 's' && k[1] == '/' && len(val) >= 16 && (len(val)-16)%4 == 0:
 		no := binary.BigEndian.Uint64(k[2:])
 		if no < x.base {
 			return fmt.Errorf("%w: session %d below the index base %d", ErrCorrupt, no, x.base)
 		}
-		if len(val) == 8 {
+		if len(val) == 16 {
 			return fmt.Errorf("%w: session %d with no items", ErrCorrupt, no)
 		}
 		// The lowest stored session is the base: eviction never leaves an
 		// empty slot at the front, so add's own choice of base for an empty
 		// ring agrees with the stored one.
-		last := int64(binary.BigEndian.Uint64(val))
-		for i := 8; i < len(val); i += 4 {
-			x.add(no, binary.BigEndian.Uint32(val[i:]), last)
+		last, hash := int64(binary.BigEndian.Uint64(val)), binary.BigEndian.Uint64(val[8:])
+		for i := 16; i < len(val); i += 4 {
+			x.add(no, hash, binary.BigEndian.Uint32(val[i:]), last)
 		}
 		if r := x.session(no); r != nil {
 			r.dirty = false

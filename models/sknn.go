@@ -95,7 +95,8 @@ func (o *KNNOptions) validate() error {
 //
 //	sim(s, n) = Σ_{i ∈ s∩n} v_s(i) / sqrt(L · |n|)
 //
-// which is the cosine of the two sets for SKNN. V-STAN multiplies sim by
+// which is the cosine of the two sets for SKNN; the same set-size
+// denominator serves all three variants here. V-STAN multiplies sim by
 // exp(-age/λsnh), age the time from n's last click to the query. The
 // candidate neighbours are the M most recent stored sessions that share an
 // item with s (the query's own session is skipped); the K most similar of
@@ -103,6 +104,14 @@ func (o *KNNOptions) validate() error {
 // for V-STAN, r being the most recent item of s that n holds. The session's
 // last item is never a candidate (the next click is another item: repeats
 // collapse), nor is an unavailable one.
+//
+// The methods: SKNN and V-SKNN as compared in Ludewig and Jannach,
+// "Evaluation of session-based recommendation algorithms" (UMUAI 2018);
+// STAN from Garg et al., "Sequence and Time Aware Neighborhood for
+// Session-based Recommendations" (SIGIR 2019); V-STAN, STAN with V-SKNN's
+// idf weighting, from Ludewig et al., "Empirical analysis of session-based
+// recommendation algorithms" (UMUAI 2021). The formulas above are this
+// package's reading of them and what its tests check.
 type SessionKNN struct {
 	opts    KNNOptions
 	idx     *SessionIndex
@@ -174,11 +183,15 @@ type qItem struct {
 }
 
 type knnCand struct {
-	no   uint64
-	dot  float64
-	ref  int // highest query position shared
-	sim  float64
-	last int64
+	no  uint64
+	sim float64 // the dot product until scored
+	ref int     // highest query position shared
+}
+
+// better orders neighbours: higher similarity, then the more recent
+// session.
+func (a *knnCand) better(b *knnCand) bool {
+	return a.sim > b.sim || (a.sim == b.sim && a.no > b.no)
 }
 
 // Candidates adds the neighbours' votes.
@@ -292,7 +305,7 @@ func (m *SessionKNN) neighbors(q *Query, sc *knnScratch) {
 		cand := knnCand{no: best}
 		for i, c := range sc.curs {
 			if c >= 0 && lists[i][c] == best {
-				cand.dot += sc.qitems[i].w
+				cand.sim += sc.qitems[i].w
 				cand.ref = max(cand.ref, sc.qitems[i].pos)
 				sc.curs[i]--
 			}
@@ -305,29 +318,62 @@ func (m *SessionKNN) neighbors(q *Query, sc *knnScratch) {
 	snh := m.opts.SNH * 24 * 3600 * 1000
 	for i := range sc.cands {
 		c := &sc.cands[i]
-		items, last, _ := m.idx.Session(c.no)
-		c.last = last
-		c.sim = c.dot / math.Sqrt(float64(L)*float64(len(items)))
+		r := m.idx.session(c.no)
+		c.sim /= math.Sqrt(float64(L) * float64(len(r.items)))
 		if m.opts.Variant == VSTAN && snh > 0 {
-			age := max(float64(q.Now-last), 0)
+			age := max(float64(q.Now-r.last), 0)
 			c.sim *= math.Exp(-age / snh)
 		}
 	}
-	slices.SortFunc(sc.cands, func(a, b knnCand) int {
-		switch {
-		case a.sim > b.sim:
+	topKCands(sc.cands, m.opts.K)
+	if len(sc.cands) > m.opts.K {
+		sc.cands = sc.cands[:m.opts.K]
+	}
+}
+
+// topKCands moves the k best candidates to the front of cs, best first:
+// a min-heap of the k best so far, then a sort of those k (M is usually
+// several times K, so this beats sorting all of cs).
+func topKCands(cs []knnCand, k int) {
+	if k > len(cs) {
+		k = len(cs)
+	}
+	h := cs[:k]
+	// heapify: the worst of the kept at h[0]
+	for i := k/2 - 1; i >= 0; i-- {
+		siftDown(h, i)
+	}
+	for i := k; i < len(cs); i++ {
+		if k > 0 && cs[i].better(&h[0]) {
+			h[0], cs[i] = cs[i], h[0]
+			siftDown(h, 0)
+		}
+	}
+	slices.SortFunc(h, func(a, b knnCand) int {
+		if a.better(&b) {
 			return -1
-		case a.sim < b.sim:
-			return 1
-		case a.no > b.no:
-			return -1
-		case a.no < b.no:
+		}
+		if b.better(&a) {
 			return 1
 		}
 		return 0
 	})
-	if len(sc.cands) > m.opts.K {
-		sc.cands = sc.cands[:m.opts.K]
+}
+
+func siftDown(h []knnCand, i int) {
+	for {
+		w, l, r := i, 2*i+1, 2*i+2
+		if l < len(h) && h[w].better(&h[l]) {
+			w = l
+		}
+		if r < len(h) && h[w].better(&h[r]) {
+			w = r
+		}
+		if w == i {
+			return
+		}
+		h[i], h[w] = h[w], h[i]
+		i = w
 	}
 }
 

@@ -106,6 +106,7 @@ func NewServer(eng *Engine, pub Publisher, opts ServerOptions) *Server {
 		writeJSON(w, http.StatusOK, map[string]string{"status": "ok"})
 	})
 	s.route("GET /readyz", s.readyz)
+	s.route("GET /{$}", s.page)
 	if opts.Gatherer != nil {
 		s.mux.Handle("GET /metrics", promhttp.HandlerFor(opts.Gatherer, promhttp.HandlerOpts{}))
 	}

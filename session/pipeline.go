@@ -86,9 +86,10 @@ func NewPipeline(opts PipelineOptions) (*Pipeline, error) {
 		if err != nil {
 			return nil, fmt.Errorf("model %q: %w", spec, err)
 		}
-		p.recs[spec] = models.AsRecommender(m)
+		p.recs[spec] = p.Set.Recommender(m)
 	}
-	p.Set.Pop() // every pipeline answers empty sessions
+	p.Set.Pop()     // every pipeline answers empty sessions
+	p.Set.Catalog() // and knows availability from catalogue records
 	p.learners = p.Set.Learners()
 	for i, m := range p.learners {
 		if pm, ok := m.(models.Persistent); ok {

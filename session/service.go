@@ -125,7 +125,18 @@ func Open(ctx context.Context, opts ServiceOptions) (_ *Service, err error) {
 			s.Shutdown(context.Background())
 		}
 	}()
-	s.reg.MustRegister(collectors.NewGoCollector(), collectors.NewProcessCollector(collectors.ProcessCollectorOpts{}))
+	s.reg.MustRegister(collectors.NewGoCollector(), collectors.NewProcessCollector(collectors.ProcessCollectorOpts{}),
+		prometheus.NewGaugeFunc(prometheus.GaugeOpts{
+			Name: "waymark_ready", Help: "1 when /readyz answers ready: state loaded, consumer running, lag under the threshold.",
+		}, func() float64 {
+			if s.eng == nil || s.cons == nil {
+				return 0
+			}
+			if ok, _ := s.ready(); ok {
+				return 1
+			}
+			return 0
+		}))
 	if err := os.MkdirAll(opts.DataDir, 0o755); err != nil {
 		return nil, fmt.Errorf("data folder: %w", err)
 	}
@@ -135,7 +146,7 @@ func Open(ctx context.Context, opts ServiceOptions) (_ *Service, err error) {
 		return nil, err
 	}
 	bo := opts.Bus
-	bo.Logger = opts.Logger
+	bo.Logger, bo.Registerer = opts.Logger, s.reg
 	if bo.URL == "" {
 		s.ns, err = stream.StartServer(ctx, stream.ServerOptions{Dir: filepath.Join(opts.DataDir, "nats"), Listen: opts.NATSListen, Logger: opts.Logger})
 		if err != nil {

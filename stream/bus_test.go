@@ -214,7 +214,7 @@ func TestBusIntegration(t *testing.T) {
 			t.Fatal(err)
 		}
 		cfg := s.CachedInfo().Config
-		if cfg.Storage != jetstream.FileStorage || strings.Join(cfg.Subjects, ",") != "waymark.events,waymark.catalog" {
+		if cfg.Storage != jetstream.FileStorage || strings.Join(cfg.Subjects, ",") != "waymark.events,waymark.catalog,waymark.control" {
 			t.Fatalf("events stream config: storage %v subjects %v", cfg.Storage, cfg.Subjects)
 		}
 		d, err := b.JetStream().Stream(ctx, "WAYMARK_DEADLETTER")
@@ -601,7 +601,7 @@ func TestConsumerOptionsValidate(t *testing.T) {
 	}
 	// A stream that does not exist is reported, not retried forever.
 	other := newTestBus(t, srv.ClientURL(), func(o *BusOptions) {
-		o.Stream, o.Subject, o.CatalogSubject, o.DeadLetterSubject = "OTHER", "o.e", "o.c", "o.d"
+		o.Stream, o.Subject, o.CatalogSubject, o.ControlSubject, o.DeadLetterSubject = "OTHER", "o.e", "o.c", "o.x", "o.d"
 	})
 	other.JetStream().DeleteStream(context.Background(), "OTHER")
 	if _, err := other.Consume(context.Background(), ConsumerOptions{Name: "a"}, h); !errors.Is(err, jetstream.ErrStreamNotFound) {

@@ -34,6 +34,7 @@ type serveFlags struct {
 	subject  string
 	catalog  string
 	dlq      string
+	replicas int
 	blend    string
 	models   string
 	halfLife time.Duration
@@ -69,6 +70,7 @@ func newServeFlags(name string, stderr io.Writer) *serveFlags {
 	fs.StringVar(&f.stream, "stream", d.Bus.Stream, "JetStream stream `name`")
 	fs.StringVar(&f.subject, "subject", d.Bus.Subject, "`subject` of click events")
 	fs.StringVar(&f.catalog, "catalog-subject", d.Bus.CatalogSubject, "`subject` of catalogue records")
+	fs.IntVar(&f.replicas, "stream-replicas", d.Bus.Replicas, "replicas of the JetStream streams (3 on a three-node cluster)")
 	fs.StringVar(&f.dlq, "dead-letter-subject", d.Bus.DeadLetterSubject, "`subject` rejected messages are copied to")
 	fs.StringVar(&f.blend, "blend", models.DefaultBlendSpec, "blend `spec` that answers queries, e.g. blend(markov=1,sr=1,iknn=1,pop=0.1)")
 	fs.StringVar(&f.models, "models", "", "extra model `specs` to learn, comma-separated")
@@ -116,6 +118,7 @@ func (f *serveFlags) options(log *slog.Logger) (session.ServiceOptions, error) {
 	o.Bus.TLSCert, o.Bus.TLSKey, o.Bus.TLSCA = f.tlsCert, f.tlsKey, f.tlsCA
 	o.Bus.Stream, o.Bus.Subject, o.Bus.CatalogSubject, o.Bus.DeadLetterSubject = f.stream, f.subject, f.catalog, f.dlq
 	o.Bus.Name = "waymark-serve"
+	o.Bus.Replicas = f.replicas
 	o.Engine.Blend = f.blend
 	o.Engine.FlushInterval, o.Engine.FlushEvents = f.flushInt, f.flushEv
 	o.Engine.CatalogSubject = f.catalog

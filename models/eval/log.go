@@ -183,10 +183,10 @@ func (b *builder) read(ctx context.Context, src Source, opts LoadOptions) error 
 		if ev.TS < prev {
 			if opts.StrictOrder {
 				where := ""
-				if l, ok := src.Reader.(liner); ok {
-					where = fmt.Sprintf(" line %d:", l.Line())
+				if l, ok := src.Reader.(liner); ok && l.Line() > 0 {
+					where = fmt.Sprintf(" line %d", l.Line())
 				}
-				return fmt.Errorf("%w: %s:%s event time %s is before the previous event's %s (sort the input, or allow sorting in memory)",
+				return fmt.Errorf("%w: %s%s: event time %s is before the previous event's %s (sort the input, or allow sorting in memory)",
 					ErrOutOfOrder, src.Name, where, fmtTS(ev.TS), fmtTS(prev))
 			}
 			s.OutOfOrder++

@@ -81,6 +81,7 @@ type EshopReader struct {
 	perDay  map[int64]int64 // rows seen per day (midnight, unix ms)
 	lastOrd map[string]int  // last order(sells) per session
 	items   map[string]*stream.ItemRecord
+	seen    map[string][ecCount]int // the item's last row, to skip unchanged rows cheaply
 	pending []stream.ItemRecord
 	fields  [][]byte
 	err     error
@@ -96,7 +97,7 @@ func NewEshopReader(r io.Reader, opts EshopOptions) (*EshopReader, error) {
 	sc.Buffer(make([]byte, 0, 64<<10), stream.MaxLineBytes)
 	e := &EshopReader{
 		opts: opts, sc: sc, step: opts.Step.Milliseconds(),
-		perDay: map[int64]int64{}, lastOrd: map[string]int{}, items: map[string]*stream.ItemRecord{},
+		perDay: map[int64]int64{}, lastOrd: map[string]int{}, items: map[string]*stream.ItemRecord{}, seen: map[string][ecCount]int{},
 	}
 	line, ok := e.scan()
 	if !ok {
@@ -218,6 +219,14 @@ func (e *EshopReader) decode(line []byte) (stream.Event, error) {
 // the item is new or shows a value it had not shown before (a model can
 // appear under its own category and under "sale").
 func (e *EshopReader) noteItem(item string, v *[ecCount]int) {
+	key := *v
+	for _, c := range []int{ecYear, ecMonth, ecDay, ecOrder, ecCountry} {
+		key[c] = 0 // not item attributes
+	}
+	if last, ok := e.seen[item]; ok && last == key {
+		return
+	}
+	e.seen[item] = key
 	attrs := map[string]string{
 		"category":            eshopCategories[v[ecCategory]-1],
 		"colour":              eshopColours[v[ecColour]-1],

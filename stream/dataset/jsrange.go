@@ -80,6 +80,7 @@ type RangeReader struct {
 	buf     []jetstream.Msg
 	done    bool
 	pending []stream.ItemRecord
+	left    uint64 // messages the consumer has yet to deliver, as the server last said
 	read    uint64
 	err     error
 }
@@ -120,6 +121,7 @@ func OpenRange(ctx context.Context, js jetstream.JetStream, opts RangeOptions) (
 		return nil, fmt.Errorf("open range of stream %q: %w", opts.Stream, err)
 	}
 	r.cons = cons
+	r.left = info.NumPending
 	r.done = info.NumPending == 0
 	return r, nil
 }
@@ -166,6 +168,7 @@ func (r *RangeReader) Next() (stream.Event, error) {
 			r.done, r.buf = true, nil
 			continue
 		}
+		r.left = meta.NumPending
 		if meta.NumPending == 0 || seq == r.end {
 			r.done = true
 		}
@@ -192,7 +195,13 @@ func (r *RangeReader) fetch() error {
 	if err := r.ctx.Err(); err != nil {
 		return err
 	}
-	batch, err := r.cons.Fetch(r.opts.Batch, jetstream.FetchMaxWait(r.opts.FetchWait))
+	// Asking for no more than the server says is left lets the fetch
+	// return at once instead of waiting out FetchWait for a full batch.
+	n := r.opts.Batch
+	if r.left > 0 && r.left < uint64(n) {
+		n = int(r.left)
+	}
+	batch, err := r.cons.Fetch(n, jetstream.FetchMaxWait(r.opts.FetchWait))
 	if err != nil {
 		return fmt.Errorf("range of stream %q: fetch: %w", r.opts.Stream, err)
 	}
