@@ -128,3 +128,10 @@ func HashSession(id string) uint64 {
 type Forgetter interface {
 	ForgetSession(hash uint64)
 }
+
+// ExposureLearner is a model that learns what responses showed: Served
+// records one response's items for tracked session sessionNo (0 for a
+// sequence sent by the caller) at event time ts.
+type ExposureLearner interface {
+	Served(sessionNo uint64, items []ItemID, ts int64)
+}

@@ -23,6 +23,15 @@ type EngineOptions struct {
 	// Blend is the spec of the blend that answers queries (default
 	// "blend"). It is built alongside Pipeline.Models.
 	Blend string
+	// ExploreEvery gives one exploration slot per this many answers
+	// (default 10: one slot in a list of 10, two in 20); 0 turns
+	// exploration of fresh items off.
+	ExploreEvery int
+	// Fresh is the spec of the exploration model (default "fresh").
+	Fresh string
+	// ExploreSeed seeds the exploration draws; with a fixed seed the same
+	// request number draws the same way.
+	ExploreSeed uint64
 	// FlushInterval bounds the time between flushes (default 1s). A flush
 	// rewrites every neighbour row changed since the last one, so flushing
 	// less often writes less; a crash replays at most this much.
@@ -44,6 +53,8 @@ func DefaultEngineOptions() EngineOptions {
 	return EngineOptions{
 		Pipeline:       DefaultPipelineOptions(),
 		Blend:          models.DefaultBlendSpec,
+		ExploreEvery:   10,
+		Fresh:          "fresh",
 		FlushInterval:  time.Second,
 		FlushEvents:    200_000,
 		CatalogSubject: "waymark.catalog",
@@ -77,12 +88,24 @@ func (o *EngineOptions) validate() error {
 	if o.Logger == nil {
 		o.Logger = slog.New(slog.DiscardHandler)
 	}
-	found := false
-	for _, m := range o.Pipeline.Models {
-		found = found || m == o.Blend
+	if o.ExploreEvery < 0 {
+		return fmt.Errorf("%w: ExploreEvery %d is negative", ErrBadOption, o.ExploreEvery)
 	}
-	if !found {
-		o.Pipeline.Models = append(append([]string(nil), o.Pipeline.Models...), o.Blend)
+	if o.Fresh == "" {
+		o.Fresh = d.Fresh
+	}
+	need := []string{o.Blend}
+	if o.ExploreEvery > 0 {
+		need = append(need, o.Fresh)
+	}
+	for _, n := range need {
+		found := false
+		for _, m := range o.Pipeline.Models {
+			found = found || m == n
+		}
+		if !found {
+			o.Pipeline.Models = append(append([]string(nil), o.Pipeline.Models...), n)
+		}
 	}
 	return nil
 }
@@ -104,6 +127,8 @@ type Engine struct {
 	met   *metrics
 	blend *models.Blend
 	iknn  *models.IKNN
+	fresh *models.Fresh
+	reqNo atomic.Uint64
 
 	// mu protects the pipeline's models and dictionary: the consumer
 	// goroutine applies under the write lock, queries read under the
@@ -147,6 +172,12 @@ func NewEngine(ctx context.Context, st *store.Store, dlq DeadLetterer, opts Engi
 	e := &Engine{opts: opts, log: opts.Logger, st: st, dlq: dlq, p: p, blend: blend, lastFlush: time.Now()}
 	if im, err := p.Set.Get("iknn"); err == nil {
 		e.iknn, _ = im.(*models.IKNN)
+	}
+	if opts.ExploreEvery > 0 {
+		fm, _ := p.Set.Get(opts.Fresh)
+		if e.fresh, ok = fm.(*models.Fresh); !ok {
+			return nil, fmt.Errorf("%w: Fresh %q is not a fresh-item model", ErrBadOption, opts.Fresh)
+		}
 	}
 	start := time.Now()
 	if err := p.Load(ctx, st); err != nil {
@@ -238,6 +269,9 @@ func (e *Engine) applyOneLocked(m *stream.Msg) error {
 		if c.Forget != "" {
 			e.p.Forget(c.Forget)
 			e.log.Info("forgot a session", "seq", m.Seq)
+		}
+		if c.Served != nil {
+			e.p.Served(c.Served.Session, c.Served.Items, c.Served.TS)
 		}
 		return nil
 	case e.opts.CatalogSubject:

@@ -25,6 +25,7 @@ type Publisher interface {
 	PublishEvents(ctx context.Context, evs []stream.Event) error
 	PublishItems(ctx context.Context, recs []stream.ItemRecord) error
 	PublishControl(ctx context.Context, c stream.Control) (uint64, error)
+	PublishControlAsync(c stream.Control) error
 }
 
 // ServerOptions configures the HTTP API.
@@ -249,7 +250,9 @@ func (s *Server) sessionNext(w http.ResponseWriter, r *http.Request) {
 		writeError(w, http.StatusBadRequest, CodeInvalidParam, err.Error())
 		return
 	}
-	writeJSON(w, http.StatusOK, s.eng.Next(NextRequest{Session: id, K: k, Keep: keep}))
+	res := s.eng.Next(NextRequest{Session: id, K: k, Keep: keep})
+	s.recordServed(id, &res)
+	writeJSON(w, http.StatusOK, res)
 }
 
 func parseBool(raw string) (bool, error) {
@@ -313,7 +316,31 @@ func (s *Server) doNext(b nextBody) (NextResult, *apiError) {
 	if err := checkItems("items", b.Items); err != nil {
 		return NextResult{}, badParam("%v", err)
 	}
-	return s.eng.Next(NextRequest{Session: b.Session, Items: b.Items, K: k, Keep: b.Keep}), nil
+	res := s.eng.Next(NextRequest{Session: b.Session, Items: b.Items, K: k, Keep: b.Keep})
+	s.recordServed(b.Session, &res)
+	return res, nil
+}
+
+// recordServed puts the fresh items an answer showed (in exploration slots
+// or ranked on their own) on the log, so every replica counts the same
+// impressions and credits a later click by the session.
+func (s *Server) recordServed(session string, res *NextResult) {
+	if s.pub == nil {
+		return
+	}
+	var items []string
+	for _, it := range res.Items {
+		if it.Fresh {
+			items = append(items, it.Item)
+		}
+	}
+	if len(items) == 0 {
+		return
+	}
+	c := stream.Control{Served: &stream.Served{Session: session, Items: items, TS: res.TS, Request: res.Request}}
+	if err := s.pub.PublishControlAsync(c); err != nil {
+		s.opts.Logger.Debug("recording served items failed", "err", err)
+	}
 }
 
 // doScore validates and answers one score request.

@@ -322,3 +322,25 @@ func (p *Pipeline) Forget(session string) {
 		}
 	}
 }
+
+// Served records the items a response showed in its exploration slots for
+// session (empty for a sent sequence) at event time ts.
+func (p *Pipeline) Served(session string, items []string, ts int64) {
+	var no uint64
+	if session != "" {
+		if _, n, ok := p.Tracker.Window(session, 0, nil); ok {
+			no = n
+		}
+	}
+	ids := make([]models.ItemID, 0, len(items))
+	for _, it := range items {
+		if id, ok := p.Dict.Lookup(it); ok {
+			ids = append(ids, id)
+		}
+	}
+	for _, m := range p.learners {
+		if e, ok := m.(models.ExposureLearner); ok {
+			e.Served(no, ids, ts)
+		}
+	}
+}

@@ -1,6 +1,7 @@
 package session
 
 import (
+	"fmt"
 	"time"
 
 	"waymark/models"
@@ -21,6 +22,11 @@ type Recommendation struct {
 	Item     string             `json:"item"`
 	Score    float64            `json:"score"`
 	Features map[string]float64 `json:"features,omitempty"`
+	// Explore marks a fresh item placed in an exploration slot by
+	// Thompson sampling rather than by its blended score; Fresh marks any
+	// item still in its freshness window, whose impressions are counted.
+	Explore bool `json:"explore,omitempty"`
+	Fresh   bool `json:"fresh,omitempty"`
 }
 
 // NextResult is the answer to a NextRequest.
@@ -34,6 +40,11 @@ type NextResult struct {
 	// Known and Unknown count the session's items the models know.
 	Known   int `json:"known"`
 	Unknown int `json:"unknown"`
+	// Request identifies the response, so what it showed can be tied to
+	// later clicks.
+	Request string `json:"request"`
+	// TS is the event time the answer was computed at (unix ms).
+	TS int64 `json:"-"`
 }
 
 // Source names.
@@ -76,6 +87,10 @@ func (e *Engine) Next(req NextRequest) NextResult {
 		}
 		res.Items[i] = Recommendation{Item: e.p.Dict.Name(it.Item), Score: it.Score, Features: f}
 	}
+	reqNo := e.reqNo.Add(1)
+	res.Request = fmt.Sprintf("%x-%d", e.opts.ExploreSeed, reqNo)
+	res.TS = q.Now
+	e.exploreLocked(&q, req.K, skip, r.Items, &res, reqNo)
 	e.mu.RUnlock()
 	res.Source = SourceBlend
 	if r.Fallback {
@@ -201,4 +216,47 @@ func (e *Engine) ForgetSession(id string) bool {
 	e.p.Forget(id)
 	e.mu.Unlock()
 	return tracked
+}
+
+// exploreLocked gives fresh items the last slots of the answer, one per
+// ExploreEvery answers, chosen by Thompson sampling over their impressions
+// and clicks. Fresh items the blend ranked on its own count toward the
+// slots and keep their places; only items that are not fresh are displaced,
+// from the bottom, and never the best answer.
+func (e *Engine) exploreLocked(q *models.Query, k int, skip func(models.ItemID) bool, ranked []models.Scored, res *NextResult, reqNo uint64) {
+	if e.fresh == nil || e.opts.ExploreEvery <= 0 || k < 2 {
+		return
+	}
+	slots := (k + e.opts.ExploreEvery - 1) / e.opts.ExploreEvery
+	shown := make(map[models.ItemID]bool, len(ranked))
+	for i, it := range ranked {
+		shown[it.Item] = true
+		if e.fresh.IsFresh(it.Item, q.Now) {
+			res.Items[i].Fresh = true
+			slots--
+		}
+	}
+	if slots <= 0 {
+		return
+	}
+	rng := models.NewExploreRand(e.opts.ExploreSeed, reqNo)
+	picks := e.fresh.Pick(q, slots, rng, func(id models.ItemID) bool {
+		return shown[id] || (skip != nil && skip(id))
+	}, nil)
+	pos := len(ranked) - 1
+	for _, p := range picks {
+		rec := Recommendation{Item: e.p.Dict.Name(p.Item), Explore: true, Fresh: true}
+		if len(res.Items) < k {
+			res.Items = append(res.Items, rec)
+			continue
+		}
+		for pos >= 1 && e.fresh.IsFresh(ranked[pos].Item, q.Now) {
+			pos--
+		}
+		if pos < 1 {
+			return
+		}
+		res.Items[pos] = rec
+		pos--
+	}
 }

@@ -372,6 +372,10 @@ func (p busPublisher) PublishControl(ctx context.Context, c stream.Control) (uin
 	return p.b.PublishControl(ctx, c)
 }
 
+func (p busPublisher) PublishControlAsync(c stream.Control) error {
+	return p.b.PublishControlAsync(c)
+}
+
 func (p busPublisher) PublishItems(ctx context.Context, recs []stream.ItemRecord) error {
 	data := make([][]byte, len(recs))
 	for i := range recs {

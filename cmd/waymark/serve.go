@@ -49,6 +49,9 @@ type serveFlags struct {
 	sync     bool
 	token    string
 	boot     bool
+	explore  int
+	fresh    string
+	seed     uint64
 	debug    string
 	logLevel string
 }
@@ -85,6 +88,9 @@ func newServeFlags(name string, stderr io.Writer) *serveFlags {
 	fs.Uint64Var(&f.readyLag, "ready-lag", d.ReadyLag, "consumer lag under which /readyz answers ready")
 	fs.BoolVar(&f.sync, "sync", false, "fsync every store commit (survives power loss, slower)")
 	fs.StringVar(&f.token, "auth-token", "", "bearer `token` required by write and admin endpoints (empty: none)")
+	fs.IntVar(&f.explore, "explore-every", d.Engine.ExploreEvery, "one exploration slot for fresh items per this many answers (0: off)")
+	fs.StringVar(&f.fresh, "fresh", d.Engine.Fresh, "`spec` of the fresh-item exploration model, e.g. fresh(window=48,min_impressions=20)")
+	fs.Uint64Var(&f.seed, "explore-seed", 0, "seed of the exploration draws (fixed: reproducible)")
 	fs.BoolVar(&f.boot, "bootstrap", false, "start an empty data folder from the newest snapshot in the NATS object store")
 	fs.StringVar(&f.debug, "debug-addr", "", "listen `address` for Go's pprof profiles (empty: off; keep it on loopback)")
 	fs.StringVar(&f.logLevel, "log-level", "info", "log `level`: debug, info, warn, error")
@@ -120,6 +126,7 @@ func (f *serveFlags) options(log *slog.Logger) (session.ServiceOptions, error) {
 	o.Bus.Name = "waymark-serve"
 	o.Bus.Replicas = f.replicas
 	o.Engine.Blend = f.blend
+	o.Engine.ExploreEvery, o.Engine.ExploreSeed, o.Engine.Fresh = f.explore, f.seed, f.fresh
 	o.Engine.FlushInterval, o.Engine.FlushEvents = f.flushInt, f.flushEv
 	o.Engine.CatalogSubject = f.catalog
 	p := &o.Engine.Pipeline

@@ -54,6 +54,8 @@ func (o *MSNBCOptions) validate() error {
 		return fmt.Errorf("%w: Step %s below 1ms (event times have millisecond resolution)", ErrBadOption, o.Step)
 	case o.Start.UnixMilli() <= 0:
 		return fmt.Errorf("%w: Start %s not after 1970", ErrBadOption, o.Start)
+	case len(o.SessionPrefix) > stream.MaxSessionBytes-20:
+		return fmt.Errorf("%w: SessionPrefix longer than %d bytes", ErrBadOption, stream.MaxSessionBytes-20)
 	case o.MaxSessions < 0:
 		return fmt.Errorf("%w: MaxSessions %d is negative", ErrBadOption, o.MaxSessions)
 	}
@@ -111,6 +113,14 @@ func NewMSNBCReader(r io.Reader, opts MSNBCOptions) (*MSNBCReader, error) {
 	}
 	if len(m.cats) == 0 {
 		return nil, fmt.Errorf("%w: msnbc: no category names before %q", ErrBadHeader, msnbcMarker)
+	}
+	for i, c := range m.cats {
+		// Category names become item ids: refuse the header rather than
+		// every click on a name no event may carry.
+		ev := stream.Event{Session: opts.SessionPrefix + "1", Item: c, TS: 1}
+		if err := ev.Validate(); err != nil {
+			return nil, fmt.Errorf("%w: msnbc: category %d: %w", ErrBadHeader, i+1, err)
+		}
 	}
 	return m, nil
 }
