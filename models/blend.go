@@ -4,6 +4,8 @@ import (
 	"fmt"
 	"slices"
 	"strings"
+	"sync/atomic"
+	"time"
 )
 
 // Recommender ranks next items for a session.
@@ -67,6 +69,9 @@ type Blend struct {
 	popW    float64
 	cat     *Catalog // nil: every item is available
 	backoff float64  // n0 of the content back-off; 0: none
+	// cost holds each signal's recent query time in nanoseconds (a
+	// moving average), to skip a signal that would overrun a budget.
+	cost []atomic.Int64
 }
 
 // DefaultContentBackoff is n0 of the content back-off: the decayed click
@@ -108,7 +113,23 @@ const DefaultPopWeight = 0.1
 
 // NewBlend returns a blend of signals over a popularity model.
 func NewBlend(pop *Pop, popWeight float64, signals ...Signal) *Blend {
-	return &Blend{signals: signals, pop: pop, popW: popWeight}
+	return &Blend{signals: signals, pop: pop, popW: popWeight, cost: make([]atomic.Int64, len(signals))}
+}
+
+// addSignal adds a signal while the blend is being built, before any query.
+func (b *Blend) addSignal(sig Signal) {
+	b.signals = append(b.signals, sig)
+	b.cost = make([]atomic.Int64, len(b.signals))
+}
+
+// Budget limits one query's time. A signal whose recent query time would
+// take the query past Deadline is skipped and named in the result.
+type Budget struct {
+	Deadline time.Time // zero: no limit
+}
+
+func (bu Budget) allows(expect time.Duration) bool {
+	return bu.Deadline.IsZero() || time.Now().Add(expect).Before(bu.Deadline)
 }
 
 // Name lists the blend's parts and weights.
@@ -138,7 +159,7 @@ func (b *Blend) Observe(*Observation) {}
 // Candidates adds blended scores of every signal's candidates and the top
 // popular items.
 func (b *Blend) Candidates(q *Query, out Scores) {
-	b.blend(q, popTopN, out, nil)
+	b.blend(q, popTopN, out, nil, nil, Budget{})
 }
 
 // ScoreItems writes the blended score of each item.
@@ -149,17 +170,25 @@ func (b *Blend) ScoreItems(q *Query, items []ItemID, out []float64) {
 	}
 }
 
-// blend fills out with blended scores; when feats is non-nil it also keeps
-// each candidate's features, indexed like Signals. It reports whether any
-// signal other than popularity had candidates.
-func (b *Blend) blend(q *Query, popN int, out Scores, feats map[ItemID][]float64) bool {
+// blend fills out with blended scores of items for which skip is false;
+// when feats is non-nil it also keeps each candidate's features, indexed
+// like Signals. Popularity fills up to popN items. It reports whether any
+// signal other than popularity had candidates, and the signals the budget
+// skipped.
+func (b *Blend) blend(q *Query, popN int, out Scores, feats map[ItemID][]float64, skip func(ItemID) bool, bu Budget) (collab bool, skipped []string) {
 	nf := len(b.signals) + 1
-	collab := false
 	part := make(Scores)
 	for si := range b.signals {
 		s := &b.signals[si]
+		if !bu.allows(time.Duration(b.cost[si].Load())) {
+			skipped = append(skipped, s.Name)
+			continue
+		}
+		start := time.Now()
 		clear(part)
 		s.Model.Candidates(q, part)
+		d := int64(time.Since(start))
+		b.cost[si].Store((b.cost[si].Load()*7 + d) / 8)
 		mx := maxScore(part)
 		if mx <= 0 {
 			continue
@@ -178,33 +207,19 @@ func (b *Blend) blend(q *Query, popN int, out Scores, feats map[ItemID][]float64
 			}
 		}
 	}
-	// Unavailable items leave before popularity fills, so the fill
-	// counts only items that can be shown.
+	// Unavailable and skipped items leave before popularity fills, so the
+	// fill counts only items that can be shown.
 	for id := range out {
-		if !b.available(id) {
+		if !b.available(id) || (skip != nil && skip(id)) {
 			delete(out, id)
 			delete(feats, id)
 		}
 	}
-	top := b.pop.Top(popTopN)
-	if b.cat != nil {
-		avail := make([]ItemID, 0, popN)
-		for _, id := range top {
-			if len(avail) == popN {
-				break
-			}
-			if b.cat.Available(id) {
-				avail = append(avail, id)
-			}
-		}
-		top = avail
-	} else if len(top) > popN {
-		top = top[:popN]
+	all := b.pop.Top(popTopN)
+	if len(all) == 0 {
+		return collab, skipped
 	}
-	if len(top) == 0 {
-		return collab
-	}
-	mx := b.pop.Count(top[0])
+	mx := b.pop.Count(all[0])
 	addPop := func(id ItemID) {
 		f := b.pop.Count(id) / mx
 		out[id] += b.popW * f
@@ -222,12 +237,20 @@ func (b *Blend) blend(q *Query, popN int, out Scores, feats map[ItemID][]float64
 		addPop(id)
 	}
 	// ...and as a source of candidates to fill the list.
-	for _, id := range top {
+	filled := 0
+	for _, id := range all {
+		if filled == popN {
+			break
+		}
+		if !b.available(id) || (skip != nil && skip(id)) {
+			continue
+		}
+		filled++
 		if _, ok := out[id]; !ok {
 			addPop(id)
 		}
 	}
-	return collab
+	return collab, skipped
 }
 
 func maxScore(s Scores) float64 {
@@ -246,23 +269,25 @@ type Result struct {
 	Features [][]float64 // per item, indexed like Signals
 	// Fallback is true when only popularity answered.
 	Fallback bool
+	// Skipped names the signals left out to stay within the budget.
+	Skipped []string
 }
 
 // Recommend ranks the k best items for q, skipping items for which skip is
 // true.
 func (b *Blend) Recommend(q *Query, k int, skip func(ItemID) bool, dst []Scored) []Scored {
 	out := make(Scores)
-	b.blend(q, k+len(q.Session), out, nil)
-	return TopK(dst, out, k, skip)
+	b.blend(q, k, out, nil, skip, Budget{})
+	return TopK(dst, out, k, nil)
 }
 
-// Explain is Recommend with each item's features.
-func (b *Blend) Explain(q *Query, k int, skip func(ItemID) bool) Result {
+// Explain is Recommend with each item's features, within a time budget.
+func (b *Blend) Explain(q *Query, k int, skip func(ItemID) bool, bu Budget) Result {
 	out := make(Scores)
 	feats := make(map[ItemID][]float64)
-	collab := b.blend(q, k+len(q.Session), out, feats)
-	items := TopK(nil, out, k, skip)
-	res := Result{Items: items, Fallback: !collab, Features: make([][]float64, len(items))}
+	collab, skipped := b.blend(q, k, out, feats, skip, bu)
+	items := TopK(nil, out, k, nil)
+	res := Result{Items: items, Fallback: !collab, Skipped: skipped, Features: make([][]float64, len(items))}
 	for i, it := range items {
 		res.Features[i] = feats[it.Item]
 	}

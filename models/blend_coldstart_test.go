@@ -43,7 +43,7 @@ func TestBlendContentBackoff(t *testing.T) {
 		t.Errorf("an unclicked candidate gets factor %g, want 1", got)
 	}
 	// The blended score is the weighted sum of the reported features.
-	res := b.Explain(q, 10, nil)
+	res := b.Explain(q, 10, nil, Budget{})
 	sigs := b.Signals()
 	for i, it := range res.Items {
 		want := 0.0

@@ -254,7 +254,7 @@ func buildColdBlend(s *Set, p *params, base builder) (Model, error) {
 			if err != nil {
 				return nil, err
 			}
-			b.signals = append(b.signals, Signal{Name: d.name, Model: part, Weight: d.weight})
+			b.addSignal(Signal{Name: d.name, Model: part, Weight: d.weight})
 		}
 	}
 	b.setColdStart(s.Catalog(), n0)

@@ -94,7 +94,8 @@ func (o *EngineOptions) validate() error {
 	if o.Fresh == "" {
 		o.Fresh = d.Fresh
 	}
-	need := []string{o.Blend}
+	// trending answers empty sessions by the request's context.
+	need := []string{o.Blend, "trending"}
 	if o.ExploreEvery > 0 {
 		need = append(need, o.Fresh)
 	}
@@ -128,6 +129,7 @@ type Engine struct {
 	blend *models.Blend
 	iknn  *models.IKNN
 	fresh *models.Fresh
+	trend *models.Trending
 	reqNo atomic.Uint64
 
 	// mu protects the pipeline's models and dictionary: the consumer
@@ -172,6 +174,11 @@ func NewEngine(ctx context.Context, st *store.Store, dlq DeadLetterer, opts Engi
 	e := &Engine{opts: opts, log: opts.Logger, st: st, dlq: dlq, p: p, blend: blend, lastFlush: time.Now()}
 	if im, err := p.Set.Get("iknn"); err == nil {
 		e.iknn, _ = im.(*models.IKNN)
+	}
+	for _, m := range p.Set.Learners() {
+		if t, ok := m.(*models.Trending); ok && e.trend == nil {
+			e.trend = t
+		}
 	}
 	if opts.ExploreEvery > 0 {
 		fm, _ := p.Set.Get(opts.Fresh)

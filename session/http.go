@@ -11,6 +11,7 @@ import (
 	"log/slog"
 	"net/http"
 	"strconv"
+	"strings"
 	"time"
 
 	"github.com/prometheus/client_golang/prometheus"
@@ -235,23 +236,42 @@ func validID(what, id string, maxLen int) error {
 }
 
 func (s *Server) sessionNext(w http.ResponseWriter, r *http.Request) {
-	id := r.PathValue("id")
-	if err := validID("session", id, stream.MaxSessionBytes); err != nil {
-		writeError(w, http.StatusBadRequest, CodeInvalidParam, err.Error())
+	q := r.URL.Query()
+	b := nextBody{Session: r.PathValue("id"), Category: q.Get("category")}
+	if b.Session == "" {
+		writeAPIError(w, badParam("session id is empty"))
 		return
 	}
-	k, err := s.parseK(r.URL.Query().Get("k"))
-	if err != nil {
-		writeError(w, http.StatusBadRequest, CodeInvalidParam, err.Error())
+	if raw := q.Get("k"); raw != "" {
+		k, err := s.parseK(raw)
+		if err != nil {
+			writeAPIError(w, badParam("%v", err))
+			return
+		}
+		b.K = &k
+	}
+	var err error
+	if b.Keep, err = parseBool(q.Get("keep_session_items")); err != nil {
+		writeAPIError(w, badParam("%v", err))
 		return
 	}
-	keep, err := parseBool(r.URL.Query().Get("keep_session_items"))
-	if err != nil {
-		writeError(w, http.StatusBadRequest, CodeInvalidParam, err.Error())
+	if v := q.Get("exclude"); v != "" {
+		b.Exclude = strings.Split(v, ",")
+	}
+	if v := q.Get("context"); v != "" {
+		b.Context = strings.Split(v, ",")
+	}
+	if v := q.Get("timeout_ms"); v != "" {
+		if b.TimeoutMS, err = strconv.Atoi(v); err != nil {
+			writeAPIError(w, badParam("timeout_ms=%q: not an integer", v))
+			return
+		}
+	}
+	res, aerr := s.doNext(b)
+	if aerr != nil {
+		writeAPIError(w, aerr)
 		return
 	}
-	res := s.eng.Next(NextRequest{Session: id, K: k, Keep: keep})
-	s.recordServed(id, &res)
 	writeJSON(w, http.StatusOK, res)
 }
 
@@ -286,6 +306,18 @@ const (
 	maxBatch   = 1_000
 )
 
+func checkStrings(field string, vals []string, maxLen int) error {
+	if len(vals) > 100 {
+		return fmt.Errorf("%s: %d entries, at most 100", field, len(vals))
+	}
+	for i, v := range vals {
+		if v == "" || len(v) > maxLen {
+			return fmt.Errorf("%s[%d]: must be 1 to %d bytes", field, i, maxLen)
+		}
+	}
+	return nil
+}
+
 func checkItems(field string, items []string) error {
 	if len(items) > maxListLen {
 		return fmt.Errorf("%s: %d entries, at most %d", field, len(items), maxListLen)
@@ -316,7 +348,31 @@ func (s *Server) doNext(b nextBody) (NextResult, *apiError) {
 	if err := checkItems("items", b.Items); err != nil {
 		return NextResult{}, badParam("%v", err)
 	}
-	res := s.eng.Next(NextRequest{Session: b.Session, Items: b.Items, K: k, Keep: b.Keep})
+	if err := checkItems("exclude", b.Exclude); err != nil {
+		return NextResult{}, badParam("%v", err)
+	}
+	if err := checkStrings("context", b.Context, 256); err != nil {
+		return NextResult{}, badParam("%v", err)
+	}
+	if len(b.Category) > 1024 {
+		return NextResult{}, badParam("category: %d bytes, at most 1024", len(b.Category))
+	}
+	if b.TimeoutMS < 0 || b.TimeoutMS > 60_000 {
+		return NextResult{}, badParam("timeout_ms=%d: must be from 0 to 60000", b.TimeoutMS)
+	}
+	req := NextRequest{Session: b.Session, Items: b.Items, K: k, Keep: b.Keep,
+		Category: b.Category, Exclude: b.Exclude, Context: b.Context,
+		Budget: time.Duration(b.TimeoutMS) * time.Millisecond}
+	if b.Prefer != nil {
+		if err := checkItems("prefer.items", b.Prefer.Items); err != nil {
+			return NextResult{}, badParam("%v", err)
+		}
+		if err := checkStrings("prefer.categories", b.Prefer.Categories, 1024); err != nil {
+			return NextResult{}, badParam("%v", err)
+		}
+		req.PreferItems, req.PreferCategories = b.Prefer.Items, b.Prefer.Categories
+	}
+	res := s.eng.Next(req)
 	s.recordServed(b.Session, &res)
 	return res, nil
 }

@@ -15,6 +15,20 @@ type NextRequest struct {
 	K       int
 	// Keep keeps items already in the session among the answers.
 	Keep bool
+	// Category restricts answers to items in this category path (or
+	// below it); Exclude leaves the given items out.
+	Category string
+	Exclude  []string
+	// Context keys (for example "category=camping" or "locale=fr") pick
+	// the popularity an empty session gets, falling back to global.
+	Context []string
+	// PreferItems and PreferCategories are what a visitor declared at a
+	// first visit; they seed the session as pseudo-clicks.
+	PreferItems      []string
+	PreferCategories []string
+	// Budget bounds the query's time; signals that would overrun it are
+	// skipped and named in the answer. 0: no limit.
+	Budget time.Duration
 }
 
 // Recommendation is one answered item.
@@ -43,19 +57,26 @@ type NextResult struct {
 	// Request identifies the response, so what it showed can be tied to
 	// later clicks.
 	Request string `json:"request"`
+	// Skipped names signals left out to stay within the time budget.
+	Skipped []string `json:"skipped,omitempty"`
 	// TS is the event time the answer was computed at (unix ms).
 	TS int64 `json:"-"`
 }
 
 // Source names.
 const (
-	SourceBlend = "blend"
-	SourcePop   = "pop"
+	SourceBlend   = "blend"
+	SourcePop     = "pop"
+	SourceContext = "context" // popularity within the request's contexts
 )
 
 // Next answers a next-items request.
 func (e *Engine) Next(req NextRequest) NextResult {
 	start := time.Now()
+	bu := models.Budget{}
+	if req.Budget > 0 {
+		bu.Deadline = start.Add(req.Budget)
+	}
 	e.mu.RLock()
 	var q models.Query
 	var res NextResult
@@ -64,41 +85,86 @@ func (e *Engine) Next(req NextRequest) NextResult {
 	} else {
 		q = e.p.NewQuery(req.Items, 0)
 	}
-	var skip func(models.ItemID) bool
-	if !req.Keep && len(q.Session) > 0 {
-		skip = func(id models.ItemID) bool {
-			for _, s := range q.Session {
-				if s.Item == id {
-					return true
-				}
+	own := q.Session // the session's own clicks, excluded by default
+	if len(req.PreferItems) > 0 || len(req.PreferCategories) > 0 {
+		pref := models.Preferences{Categories: req.PreferCategories}
+		for _, it := range req.PreferItems {
+			if id, ok := e.p.Dict.Lookup(it); ok {
+				pref.Items = append(pref.Items, id)
 			}
-			return false
+		}
+		q = e.p.Set.SeedQuery(q, pref, 0)
+	}
+	skip := e.skipFunc(req, own)
+	var r models.Result
+	if len(q.Session) == 0 && len(req.Context) > 0 && e.trend != nil {
+		r.Items = e.trend.Popular(req.Context, req.K, q.Now, skip)
+		r.Features = make([][]float64, len(r.Items))
+		res.Source = SourceContext
+	} else {
+		r = e.blend.Explain(&q, req.K, skip, bu)
+		res.Source = SourceBlend
+		if r.Fallback {
+			res.Source = SourcePop
 		}
 	}
-	r := e.blend.Explain(&q, req.K, skip)
 	names := e.blend.Signals()
 	res.Items = make([]Recommendation, len(r.Items))
 	for i, it := range r.Items {
 		f := make(map[string]float64, len(names))
 		for j, n := range names {
-			if v := r.Features[i][j]; v != 0 {
-				f[n] = v
+			if j < len(r.Features[i]) && r.Features[i][j] != 0 {
+				f[n] = r.Features[i][j]
 			}
 		}
 		res.Items[i] = Recommendation{Item: e.p.Dict.Name(it.Item), Score: it.Score, Features: f}
 	}
+	res.Skipped = r.Skipped
 	reqNo := e.reqNo.Add(1)
 	res.Request = fmt.Sprintf("%x-%d", e.opts.ExploreSeed, reqNo)
 	res.TS = q.Now
-	e.exploreLocked(&q, req.K, skip, r.Items, &res, reqNo)
-	e.mu.RUnlock()
-	res.Source = SourceBlend
-	if r.Fallback {
-		res.Source = SourcePop
+	if bu.Deadline.IsZero() || time.Now().Before(bu.Deadline) {
+		e.exploreLocked(&q, req.K, skip, r.Items, &res, reqNo)
+	} else {
+		res.Skipped = append(res.Skipped, "explore")
 	}
-	res.Known, res.Unknown = len(q.Session), q.Unknown
+	e.mu.RUnlock()
+	res.Known, res.Unknown = len(own), q.Unknown
 	e.met.observeQuery("next", res.Source, time.Since(start))
 	return res
+}
+
+// skipFunc returns what a request leaves out: the session's own items
+// (unless kept), excluded items, items outside the requested category.
+// Call with the read lock held.
+func (e *Engine) skipFunc(req NextRequest, own []models.Step) func(models.ItemID) bool {
+	var excl map[models.ItemID]bool
+	if len(req.Exclude) > 0 {
+		excl = make(map[models.ItemID]bool, len(req.Exclude))
+		for _, it := range req.Exclude {
+			if id, ok := e.p.Dict.Lookup(it); ok {
+				excl[id] = true
+			}
+		}
+	}
+	keepOwn := req.Keep || len(own) == 0
+	cat := e.p.Set.Catalog()
+	if keepOwn && excl == nil && req.Category == "" {
+		return nil
+	}
+	return func(id models.ItemID) bool {
+		if !keepOwn {
+			for _, s := range own {
+				if s.Item == id {
+					return true
+				}
+			}
+		}
+		if excl[id] {
+			return true
+		}
+		return req.Category != "" && !cat.InCategory(id, req.Category)
+	}
 }
 
 // ScoreRequest asks for features of caller-supplied candidates.

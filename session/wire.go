@@ -13,6 +13,21 @@ type nextBody struct {
 	Items   []string `json:"items"`
 	K       *int     `json:"k"`
 	Keep    bool     `json:"keep_session_items"`
+	// Category restricts answers to a category path; Exclude leaves items
+	// out.
+	Category string   `json:"category,omitempty"`
+	Exclude  []string `json:"exclude,omitempty"`
+	// Context keys choose the popularity an empty session gets.
+	Context []string `json:"context,omitempty"`
+	// Prefer holds what a visitor declared at a first visit.
+	Prefer *preferBody `json:"prefer,omitempty"`
+	// TimeoutMS is the query's latency budget in milliseconds.
+	TimeoutMS int `json:"timeout_ms,omitempty"`
+}
+
+type preferBody struct {
+	Items      []string `json:"items"`
+	Categories []string `json:"categories"`
 }
 
 // nextBatchBody is the body of POST /v1/next/batch.
