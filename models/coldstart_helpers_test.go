@@ -55,6 +55,8 @@ type csEvent struct {
 	Item    ItemID
 	TS      int64
 	Info    *ItemInfo
+	// Prior, when set, is an imported neighbour list for Item.
+	Prior []Scored
 }
 
 // csDriver plays events into a Set the way the pipeline does: session
@@ -102,6 +104,14 @@ func (d *csDriver) play(evs []csEvent) {
 }
 
 func (d *csDriver) apply(ev *csEvent) {
+	if ev.Prior != nil {
+		for _, m := range d.learners {
+			if p, ok := m.(PriorLearner); ok {
+				p.ObservePrior(ev.Item, ev.Prior)
+			}
+		}
+		return
+	}
 	if ev.Info != nil {
 		for _, m := range d.learners {
 			if c, ok := m.(CatalogLearner); ok {
@@ -256,6 +266,10 @@ func newCSWorld(seed uint64, sessions int) *csWorld {
 	w := &csWorld{start: 1_767_225_600_000, unavailable: []ItemID{5, 17}}
 	for id := ItemID(0); id < 48; id++ {
 		w.events = append(w.events, csEvent{Info: csItemInfo(id, w.start)})
+	}
+	// Priors from another site for the first items: each item's next two.
+	for id := ItemID(0); id < 60; id++ {
+		w.events = append(w.events, csEvent{Item: id, Prior: []Scored{{id + 1, 1}, {id + 2, 0.5}}})
 	}
 	for _, id := range w.unavailable {
 		info := csItemInfo(id, w.start)

@@ -177,7 +177,7 @@ func checkRanked(t *testing.T, qi, k int, got []Scored, skip func(ItemID) bool, 
 
 func firstClickTS(evs []csEvent) int64 {
 	for _, e := range evs {
-		if e.Info == nil {
+		if e.Info == nil && e.Prior == nil {
 			return e.TS
 		}
 	}

@@ -22,7 +22,7 @@ func defaultColdSignals() []struct {
 	return []struct {
 		name   string
 		weight float64
-	}{{"content", 1}}
+	}{{"content", 1}, {"prior", 1}}
 }
 
 // registerColdStart adds the cold-start models' builders to the set and
@@ -38,6 +38,13 @@ func (s *Set) registerColdStart() {
 	s.builders["vstan"] = knn(VSTAN)
 	s.builders["content"] = buildContent
 	s.builders["fresh"] = buildFresh
+	s.builders["prior"] = func(s *Set, p *params) (Model, error) {
+		n0 := p.Float("n0", 20, 0)
+		if err := p.done(); err != nil {
+			return nil, err
+		}
+		return NewPrior(n0, s.Pop()), nil
+	}
 	s.builders["trending"] = buildTrending
 	base := s.builders["blend"]
 	s.builders["blend"] = func(s *Set, p *params) (Model, error) { return buildColdBlend(s, p, base) }

@@ -280,6 +280,9 @@ func (e *Engine) applyOneLocked(m *stream.Msg) error {
 		if c.Served != nil {
 			e.p.Served(c.Served.Session, c.Served.Items, c.Served.TS)
 		}
+		if c.Prior != nil {
+			e.p.ApplyPrior(c.Prior)
+		}
 		return nil
 	case e.opts.CatalogSubject:
 		rec, err := stream.DecodeItemJSON(m.Data)
@@ -383,6 +386,14 @@ func (e *Engine) Snapshot(put func(seq uint64, r io.Reader) error) error {
 		return berr
 	}
 	return perr
+}
+
+// ExportPriors writes every item's learned neighbours to f, for
+// another deployment to import.
+func (e *Engine) ExportPriors(f func(stream.PriorRow) error) error {
+	e.mu.RLock()
+	defer e.mu.RUnlock()
+	return e.p.ExportPriors(f)
 }
 
 // SetStreamLast records the stream's last sequence, for lag and readiness.

@@ -104,6 +104,7 @@ func NewServer(eng *Engine, pub Publisher, opts ServerOptions) *Server {
 	s.route("GET /v1/popular", s.popular)
 	s.route("GET /v1/stats", s.stats)
 	s.route("POST /v1/admin/snapshot", s.guard(s.snapshot))
+	s.route("GET /v1/admin/priors", s.guard(s.exportPriors))
 	s.route("GET /healthz", func(w http.ResponseWriter, r *http.Request) {
 		writeJSON(w, http.StatusOK, map[string]string{"status": "ok"})
 	})
@@ -145,6 +146,9 @@ func (s *Server) route(pattern string, h http.HandlerFunc) {
 		h(sw, r)
 	})
 }
+
+// PriorsFormat names the priors export format in its header line.
+const PriorsFormat = "waymark-priors"
 
 // guard requires the bearer token on write and admin routes.
 func (s *Server) guard(h http.HandlerFunc) http.HandlerFunc {
@@ -543,6 +547,19 @@ func (s *Server) snapshot(w http.ResponseWriter, r *http.Request) {
 		}
 	default:
 		writeError(w, http.StatusBadRequest, CodeInvalidParam, fmt.Sprintf("to=%q: must be bus or download", to))
+	}
+}
+
+// exportPriors streams the learned neighbour lists in the priors format:
+// a header line, then one JSON object per item and model.
+func (s *Server) exportPriors(w http.ResponseWriter, r *http.Request) {
+	w.Header().Set("Content-Type", "application/x-ndjson")
+	enc := json.NewEncoder(w)
+	st := s.eng.Stats()
+	_ = enc.Encode(map[string]any{"format": PriorsFormat, "version": 1, "items": st.Items, "events_applied": st.EventsApplied, "watermark": st.Watermark})
+	err := s.eng.ExportPriors(func(row stream.PriorRow) error { return enc.Encode(row) })
+	if err != nil {
+		s.opts.Logger.Warn("priors export failed", "err", err)
 	}
 }
 

@@ -344,3 +344,41 @@ func (p *Pipeline) Served(session string, items []string, ts int64) {
 		}
 	}
 }
+
+// ApplyPrior learns one imported neighbour list.
+func (p *Pipeline) ApplyPrior(row *stream.PriorRow) {
+	item, _ := p.Dict.Intern(row.Item)
+	ns := make([]models.Scored, 0, len(row.Neighbors))
+	for _, n := range row.Neighbors {
+		id, _ := p.Dict.Intern(n.Item)
+		ns = append(ns, models.Scored{Item: id, Score: n.Weight})
+	}
+	for _, m := range p.learners {
+		if pl, ok := m.(models.PriorLearner); ok {
+			pl.ObservePrior(item, ns)
+		}
+	}
+}
+
+// ExportPriors calls f with each item's learned neighbours from every model
+// that can export them, scores scaled to [0, 1] per item.
+func (p *Pipeline) ExportPriors(f func(row stream.PriorRow) error) error {
+	keys := p.Set.Keys()
+	for i, m := range p.learners {
+		ex, ok := m.(models.Exporter)
+		if !ok {
+			continue
+		}
+		err := ex.Export(p.cp.Watermark, func(item models.ItemID, ns []models.Scored) error {
+			row := stream.PriorRow{Model: keys[i], Item: p.Dict.Name(item), Neighbors: make([]stream.PriorNeighbor, len(ns))}
+			for j, n := range ns {
+				row.Neighbors[j] = stream.PriorNeighbor{Item: p.Dict.Name(n.Item), Weight: n.Score}
+			}
+			return f(row)
+		})
+		if err != nil {
+			return err
+		}
+	}
+	return nil
+}

@@ -14,6 +14,43 @@ type Control struct {
 	// Served records items a response showed in its exploration slots, so
 	// every replica counts the same impressions and credits a later click.
 	Served *Served `json:"served,omitempty"`
+	// Prior carries one item's neighbours imported from another
+	// deployment (waymark priors import).
+	Prior *PriorRow `json:"prior,omitempty"`
+}
+
+// PriorRow is one item's neighbours in the priors format (FORMAT.md):
+// weights in [0, 1] per exporting model, already scaled by the import
+// weight when it travels as a control message.
+type PriorRow struct {
+	Model     string          `json:"model,omitempty"`
+	Item      string          `json:"item"`
+	Neighbors []PriorNeighbor `json:"neighbors"`
+}
+
+// PriorNeighbor is one neighbour and its weight.
+type PriorNeighbor struct {
+	Item   string  `json:"item"`
+	Weight float64 `json:"weight"`
+}
+
+// Validate checks a prior row's ids and weights.
+func (r *PriorRow) Validate() error {
+	if err := validateID("prior.item", r.Item, MaxItemBytes, true, true, ErrInvalidEvent); err != nil {
+		return err
+	}
+	if len(r.Neighbors) == 0 || len(r.Neighbors) > 10_000 {
+		return &FieldError{Field: "prior.neighbors", Reason: "must hold 1 to 10000 neighbours", Err: ErrInvalidEvent}
+	}
+	for _, n := range r.Neighbors {
+		if err := validateID("prior.neighbors.item", n.Item, MaxItemBytes, true, true, ErrInvalidEvent); err != nil {
+			return err
+		}
+		if !(n.Weight >= 0 && n.Weight <= 1e6) {
+			return &FieldError{Field: "prior.neighbors.weight", Reason: "must be a number from 0 to 1e6", Err: ErrInvalidEvent}
+		}
+	}
+	return nil
 }
 
 // Served is one response's exploration items.
@@ -30,9 +67,19 @@ func DecodeControl(data []byte) (Control, error) {
 	if err := json.Unmarshal(data, &c); err != nil {
 		return c, &FieldError{Reason: "control message: " + err.Error(), Err: ErrInvalidEvent}
 	}
+	n := 0
+	for _, set := range []bool{c.Forget != "", c.Served != nil, c.Prior != nil} {
+		if set {
+			n++
+		}
+	}
 	switch {
-	case c.Forget != "" && c.Served != nil:
+	case n > 1:
 		return c, &FieldError{Reason: "a control message carries one command", Err: ErrInvalidEvent}
+	case c.Prior != nil:
+		if err := c.Prior.Validate(); err != nil {
+			return c, err
+		}
 	case c.Forget != "":
 		if err := validateID("forget", c.Forget, MaxSessionBytes, true, true, ErrInvalidEvent); err != nil {
 			return c, err
@@ -50,7 +97,7 @@ func DecodeControl(data []byte) (Control, error) {
 			}
 		}
 	default:
-		return c, &FieldError{Reason: "missing: a control message must name a command (forget or served)", Err: ErrInvalidEvent}
+		return c, &FieldError{Reason: "missing: a control message must name a command (forget, served or prior)", Err: ErrInvalidEvent}
 	}
 	return c, nil
 }

@@ -8,6 +8,7 @@
 //	waymark send    [flags] FILE...  publish a click log to the bus
 //	waymark replay  [flags] FILE...  evaluate models offline on a click log
 //	waymark snapshot [flags]         snapshot a running service for new replicas
+//	waymark priors export|import     carry item-item statistics to a new site
 //	waymark demo    [flags]          run an invented shop end to end
 //
 // Run "waymark COMMAND --help" for each command's flags.
@@ -34,6 +35,7 @@ func commands() []command {
 		{"send", "publish a click log (JSON lines or CSV, optionally gzip) to the bus", runSend},
 		{"replay", "evaluate models offline by replaying a click log", runReplay},
 		{"snapshot", "store a consistent snapshot of a running service for new replicas", runSnapshot},
+		{"priors", "export item-item statistics, or import them into a new site", runPriors},
 		{"demo", "run an invented shop end to end on the embedded default", runDemo},
 	}
 }
