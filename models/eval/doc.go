@@ -59,10 +59,11 @@
 // HitRate@K (a relevant item in the top K), MRR@K (1/rank of the first, 0
 // past K), NDCG@K (binary gains, discount 1/log2(rank+1), over the ideal
 // list), Precision@K (relevant items in the top K over K), Recall@K (over
-// the relevant set), Coverage@K (share of the replayed items ever
-// recommended in a top K) and Popularity@K (mean, over queries that got an
-// answer, of the recommended items' learned click count over the most
-// clicked item's, at query time: a popularity-bias measure). The metric
+// the relevant set), Coverage@K (share of the replayed items, for kfold of
+// the selected sessions' items, ever recommended in a top K) and
+// Popularity@K (mean, over queries that got an answer, of the recommended
+// items' learned click count over the most clicked item's, at query time:
+// a popularity-bias measure). The metric
 // functions are checked against scikit-learn (testdata/gen_sklearn.py).
 //
 // The same HitRate and MRR are reported for queries whose next item was

@@ -522,7 +522,7 @@ func TestHTMLCarriesJSONNumbers(t *testing.T) {
 			}
 		}
 	}
-	if n := strings.Count(page, `<svg class="chart"`); n < len(MetricNames)+3 {
+	if n := strings.Count(page, `<svg class="chart"`); n < len(metricNames)+3 {
 		t.Errorf("%d charts, want a curve per metric and the breakdown and length charts", n)
 	}
 }

@@ -10,12 +10,20 @@ import (
 	"waymark/models"
 )
 
-// MetricNames are the metrics reported at every cut-off, in report order.
+// metricNames are the metrics reported at every cut-off, in report order.
 // A metric's key is its name, '@' and the cut-off: "HitRate@20".
-var MetricNames = []string{"HitRate", "MRR", "NDCG", "Precision", "Recall", "Coverage", "Popularity"}
+var metricNames = []string{"HitRate", "MRR", "NDCG", "Precision", "Recall", "Coverage", "Popularity"}
 
-// BreakdownNames are the metrics of the cold-target and position breakdowns.
-var BreakdownNames = []string{"HitRate", "MRR"}
+// breakdownNames are the metrics of the cold-target and position breakdowns.
+var breakdownNames = []string{"HitRate", "MRR"}
+
+// MetricNames returns the metrics reported at every cut-off, in report
+// order; a metric's key is Key(name, k).
+func MetricNames() []string { return append([]string(nil), metricNames...) }
+
+// BreakdownNames returns the metrics of the cold-target and position
+// breakdowns.
+func BreakdownNames() []string { return append([]string(nil), breakdownNames...) }
 
 // Key returns a metric's key at cut-off k.
 func Key(name string, k int) string { return name + "@" + strconv.Itoa(k) }

@@ -103,10 +103,10 @@ func (r *Report) htmlView(opts OutputOptions) *htmlView {
 	color := func(i int) string { c, _ := seriesColor(i); return c }
 
 	for _, k := range ks {
-		t := htmlTable{Caption: "Metrics at K = " + strconv.Itoa(k), Heads: append([]string{"queries"}, MetricNames...)}
+		t := htmlTable{Caption: "Metrics at K = " + strconv.Itoa(k), Heads: append([]string{"queries"}, metricNames...)}
 		for i, m := range r.Models {
 			row := htmlRow{Name: m.Name, Best: m.Best, Color: color(i), Cells: []cell{intCell("queries", m.Queries)}}
-			for _, n := range MetricNames {
+			for _, n := range metricNames {
 				key := Key(n, k)
 				row.Cells = append(row.Cells, numCell(key, m.Metrics[key]))
 			}
@@ -119,7 +119,7 @@ func (r *Report) htmlView(opts OutputOptions) *htmlView {
 	for i, k := range ks {
 		xl[i] = strconv.Itoa(k)
 	}
-	for _, n := range MetricNames {
+	for _, n := range metricNames {
 		var ss []series
 		for _, m := range r.Models {
 			s := series{Name: m.Name}

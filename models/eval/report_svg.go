@@ -10,8 +10,9 @@ import (
 // The charts of the HTML report are inline SVG written here, so the page
 // needs no script or network to draw them.
 
-// palette is the Okabe-Ito set, chosen to stay apart for colour-blind
-// readers; past its end the colours repeat with dashed lines.
+// palette is a set of colours that stay apart for colour-blind readers
+// (common practice in chart design); past its end the colours repeat with
+// dashed lines.
 var palette = []string{"#0072B2", "#E69F00", "#009E73", "#D55E00", "#CC79A7", "#56B4E9", "#999999", "#000000"}
 
 func seriesColor(i int) (color, dash string) {

@@ -79,7 +79,7 @@ func (r *Report) WriteTable(w io.Writer) error {
 		pp.RareItems, pp.RareItemEvents, pp.ShortSessions, pp.ShortSessionEvents, pp.UnseenTestEvents)
 	for _, k := range r.Protocol.K {
 		fmt.Fprintf(tw, "\n@%d\tqueries", k)
-		for _, n := range MetricNames {
+		for _, n := range metricNames {
 			fmt.Fprintf(tw, "\t%s", n)
 		}
 		fmt.Fprintf(tw, "\tcold HitRate\tcold MRR\n")
@@ -89,7 +89,7 @@ func (r *Report) WriteTable(w io.Writer) error {
 				name += " *"
 			}
 			fmt.Fprintf(tw, "%s\t%d", name, m.Queries)
-			for _, n := range MetricNames {
+			for _, n := range metricNames {
 				fmt.Fprintf(tw, "\t%s", fmtMetric(m.Metrics[Key(n, k)]))
 			}
 			if m.Cold.Queries == 0 {
@@ -122,20 +122,20 @@ func (r *Report) WriteCSV(w io.Writer, opts OutputOptions) error {
 	cw := csv.NewWriter(w)
 	head := []string{"model", "params", "queries", "answered", "best"}
 	for _, k := range r.Protocol.K {
-		for _, n := range MetricNames {
+		for _, n := range metricNames {
 			head = append(head, Key(n, k))
 		}
 	}
 	head = append(head, "cold_queries")
 	for _, k := range r.Protocol.K {
-		for _, n := range BreakdownNames {
+		for _, n := range breakdownNames {
 			head = append(head, "cold_"+Key(n, k))
 		}
 	}
 	for _, l := range positionLabels {
 		head = append(head, "position_"+l+"_queries")
 		for _, k := range r.Protocol.K {
-			for _, n := range BreakdownNames {
+			for _, n := range breakdownNames {
 				head = append(head, "position_"+l+"_"+Key(n, k))
 			}
 		}
@@ -150,20 +150,20 @@ func (r *Report) WriteCSV(w io.Writer, opts OutputOptions) error {
 	for _, m := range r.Models {
 		row := []string{m.Name, paramString(m.Params), strconv.FormatInt(m.Queries, 10), strconv.FormatInt(m.Answered, 10), strconv.FormatBool(m.Best)}
 		for _, k := range r.Protocol.K {
-			for _, n := range MetricNames {
+			for _, n := range metricNames {
 				row = append(row, fmtFloat(m.Metrics[Key(n, k)]))
 			}
 		}
 		row = append(row, strconv.FormatInt(m.Cold.Queries, 10))
 		for _, k := range r.Protocol.K {
-			for _, n := range BreakdownNames {
+			for _, n := range breakdownNames {
 				row = append(row, fmtFloat(m.Cold.Metrics[Key(n, k)]))
 			}
 		}
 		for _, p := range m.Positions {
 			row = append(row, strconv.FormatInt(p.Queries, 10))
 			for _, k := range r.Protocol.K {
-				for _, n := range BreakdownNames {
+				for _, n := range breakdownNames {
 					row = append(row, fmtFloat(p.Metrics[Key(n, k)]))
 				}
 			}
