@@ -21,13 +21,17 @@ func AsRecommender(m Model) Recommender {
 	if r, ok := m.(Recommender); ok {
 		return r
 	}
-	return single{m}
+	return single{m, new(scoresPool)}
 }
 
-type single struct{ m Model }
+type single struct {
+	m    Model
+	pool *scoresPool
+}
 
 func (s single) Recommend(q *Query, k int, skip func(ItemID) bool, dst []Scored) []Scored {
-	out := make(Scores)
+	out := s.pool.get()
+	defer s.pool.put(out)
 	s.m.Candidates(q, out)
 	return TopK(dst, out, k, skip)
 }

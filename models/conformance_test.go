@@ -142,7 +142,7 @@ func mustModel(t *testing.T, r Recommender) Model {
 	switch x := r.(type) {
 	case *Blend:
 		return x
-	case availRecommender:
+	case *availRecommender:
 		return x.m
 	}
 	t.Fatalf("unexpected recommender %T", r)

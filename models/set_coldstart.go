@@ -96,16 +96,18 @@ func (s *Set) Recommender(m Model) Recommender {
 	if b, ok := m.(*Blend); ok {
 		return b // filters by itself
 	}
-	return availRecommender{m: m, cat: s.Catalog()}
+	return &availRecommender{m: m, cat: s.Catalog()}
 }
 
 type availRecommender struct {
-	m   Model
-	cat *Catalog
+	m    Model
+	cat  *Catalog
+	pool scoresPool
 }
 
-func (r availRecommender) Recommend(q *Query, k int, skip func(ItemID) bool, dst []Scored) []Scored {
-	out := make(Scores)
+func (r *availRecommender) Recommend(q *Query, k int, skip func(ItemID) bool, dst []Scored) []Scored {
+	out := r.pool.get()
+	defer r.pool.put(out)
 	r.m.Candidates(q, out)
 	return TopK(dst, out, k, func(id ItemID) bool {
 		return !r.cat.Available(id) || (skip != nil && skip(id))

@@ -1,6 +1,9 @@
 package models
 
-import "slices"
+import (
+	"slices"
+	"sync"
+)
 
 // Scored is a candidate and its score.
 type Scored struct {
@@ -24,20 +27,88 @@ func cmpScore(sa, sb float64, a, b ItemID) int {
 	return 0
 }
 
+// better reports whether x ranks before y.
+func better(x, y Scored) bool { return cmpScore(x.Score, y.Score, x.Item, y.Item) < 0 }
+
 // TopK returns the k best-scored items of s for which skip is false (skip
-// may be nil), best first, ties by lower id. It appends to dst.
+// may be nil), best first, ties by lower id. It appends to dst. Selection
+// keeps a heap of the k best seen, so a query with many candidates costs
+// n log k rather than a full sort.
 func TopK(dst []Scored, s Scores, k int, skip func(ItemID) bool) []Scored {
+	if k <= 0 {
+		return dst
+	}
 	start := len(dst)
+	// h is a min-heap by rank: h[0] is the worst of the best k so far.
+	h := dst
 	for id, v := range s {
-		if v <= 0 || (skip != nil && skip(id)) {
+		if v <= 0 {
 			continue
 		}
-		dst = append(dst, Scored{id, v})
+		c := Scored{id, v}
+		n := len(h) - start
+		full := n == k
+		// Ask skip only of a candidate that would enter: most do not.
+		if (full && !better(c, h[start])) || (skip != nil && skip(id)) {
+			continue
+		}
+		if !full {
+			h = append(h, c)
+			topSiftUp(h[start:], n)
+			continue
+		}
+		h[start] = c
+		topSiftDown(h[start:], 0)
 	}
-	part := dst[start:]
+	part := h[start:]
 	slices.SortFunc(part, func(x, y Scored) int { return cmpScore(x.Score, y.Score, x.Item, y.Item) })
-	if len(part) > k {
-		dst = dst[:start+k]
+	return h
+}
+
+func topSiftUp(h []Scored, i int) {
+	for i > 0 {
+		p := (i - 1) / 2
+		if !better(h[p], h[i]) { // parent not better than child: heap order holds
+			break
+		}
+		h[p], h[i] = h[i], h[p]
+		i = p
 	}
-	return dst
+}
+
+func topSiftDown(h []Scored, i int) {
+	for {
+		l := 2*i + 1
+		if l >= len(h) {
+			return
+		}
+		w := l
+		if r := l + 1; r < len(h) && better(h[l], h[r]) {
+			w = r // the worse child
+		}
+		if !better(h[i], h[w]) {
+			return
+		}
+		h[i], h[w] = h[w], h[i]
+		i = w
+	}
+}
+
+// scoresPool recycles candidate maps across queries; a query's map is
+// cleared before reuse, so no state crosses queries.
+type scoresPool struct{ p sync.Pool }
+
+func (sp *scoresPool) get() Scores {
+	if s, ok := sp.p.Get().(Scores); ok {
+		return s
+	}
+	return make(Scores, 64)
+}
+
+func (sp *scoresPool) put(s Scores) {
+	if len(s) > 1<<16 {
+		return // a rare huge map is not worth keeping
+	}
+	clear(s)
+	sp.p.Put(s)
 }
