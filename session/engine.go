@@ -252,7 +252,7 @@ func (e *Engine) applyLocked(ctx context.Context, msgs []stream.Msg) {
 		e.lastMsg = &last
 	}
 	pc := e.p.Checkpoint()
-	e.cp.Applied, e.cp.Catalog = pc.Applied, pc.Catalog
+	e.cp.Applied, e.cp.Catalog, e.cp.Overflow = pc.Applied, pc.Catalog, pc.Overflow
 	e.mu.Unlock()
 	e.publishCounters()
 	for _, r := range rejects {
@@ -416,6 +416,7 @@ type Stats struct {
 	EventsApplied  uint64   `json:"events_applied"`
 	EventsRejected uint64   `json:"events_rejected"`
 	CatalogApplied uint64   `json:"catalog_applied"`
+	ItemsOverflow  uint64   `json:"items_overflow"`
 	LastSequence   uint64   `json:"last_sequence"`
 	StreamLast     uint64   `json:"stream_last_sequence"`
 	Lag            uint64   `json:"consumer_lag"`
@@ -430,12 +431,15 @@ type Stats struct {
 func (e *Engine) Stats() Stats {
 	e.mu.RLock()
 	items := e.p.Dict.Len()
-	wm := e.p.Checkpoint().Watermark
+	pc := e.p.Checkpoint()
+	wm := pc.Watermark
 	keys := append([]string(nil), e.p.Set.Keys()...)
 	e.mu.RUnlock()
 	s := Stats{
 		EventsApplied:  e.applied.Load(),
 		EventsRejected: e.rejected.Load(),
+		CatalogApplied: pc.Catalog,
+		ItemsOverflow:  pc.Overflow,
 		LastSequence:   e.lastSeq.Load(),
 		StreamLast:     e.streamLast.Load(),
 		Lag:            e.Lag(),

@@ -18,6 +18,11 @@ type PipelineOptions struct {
 	Models []string
 	// HalfLife is the decay half-life of every count (default 7 days).
 	HalfLife time.Duration
+	// MaxItems caps the item dictionary (default 5,000,000). Once it is
+	// full, clicks and records on items it does not know are counted as
+	// overflow and learn nothing, so a flood of made-up ids cannot grow
+	// memory without bound; raise the cap for a larger catalogue.
+	MaxItems int
 	Tracker  TrackerOptions
 	Set      models.SetOptions
 }
@@ -27,6 +32,7 @@ func DefaultPipelineOptions() PipelineOptions {
 	return PipelineOptions{
 		Models:   []string{models.DefaultBlendSpec},
 		HalfLife: models.DefaultHalfLife,
+		MaxItems: 5_000_000,
 		Tracker:  DefaultTrackerOptions(),
 		Set:      models.DefaultSetOptions(),
 	}
@@ -39,6 +45,12 @@ func (o *PipelineOptions) validate() error {
 	}
 	if o.HalfLife == 0 {
 		o.HalfLife = d.HalfLife
+	}
+	if o.MaxItems == 0 {
+		o.MaxItems = d.MaxItems
+	}
+	if o.MaxItems < 1 {
+		return fmt.Errorf("%w: MaxItems %d below 1", ErrBadOption, o.MaxItems)
 	}
 	if o.HalfLife < time.Minute {
 		return fmt.Errorf("%w: HalfLife %s below 1m", ErrBadOption, o.HalfLife)
@@ -124,17 +136,32 @@ func (p *Pipeline) fingerprint() string {
 // sessions; counting events, not wall time, keeps replay deterministic.
 const expireEvery = 4096
 
+// intern returns item's id, adding it unless the dictionary is full.
+func (p *Pipeline) intern(item string) (models.ItemID, bool) {
+	if id, ok := p.Dict.Lookup(item); ok {
+		return id, true
+	}
+	if p.Dict.Len() >= p.opts.MaxItems {
+		p.cp.Overflow++
+		return 0, false
+	}
+	id, _ := p.Dict.Intern(item)
+	return id, true
+}
+
 // Apply learns one valid event.
 func (p *Pipeline) Apply(ev *stream.Event) {
+	if _, known := p.Dict.Lookup(ev.Item); !known && p.Dict.Len() >= p.opts.MaxItems {
+		p.cp.Overflow++
+		p.cp.Applied++
+		return
+	}
 	if p.cp.DecayRef == 0 {
 		p.setDecayRef(ev.TS)
 	} else if p.decay.NeedsRebase(ev.TS) {
 		p.rebase(ev.TS)
 	}
-	item, added := p.Dict.Intern(ev.Item)
-	if added {
-		p.onNewItem(item)
-	}
+	item, _ := p.Dict.Intern(ev.Item)
 	p.cp.Touches++
 	c := p.Tracker.Observe(ev.Session, item, ev.TS, p.cp.Touches, p.nextSession, p.buf)
 	p.buf = c.Window[:0]
@@ -164,8 +191,6 @@ func (p *Pipeline) nextSession() uint64 {
 	p.cp.Sessions++
 	return p.cp.Sessions
 }
-
-func (p *Pipeline) onNewItem(models.ItemID) {}
 
 func (p *Pipeline) setDecayRef(ref int64) {
 	p.cp.DecayRef = ref
@@ -278,7 +303,10 @@ func (p *Pipeline) Load(ctx context.Context, st *store.Store) error {
 // a temporal-split evaluation uses it for test sessions, which must be
 // tracked to form queries but must not be learned.
 func (p *Pipeline) Track(ev *stream.Event) Click {
-	item, _ := p.Dict.Intern(ev.Item)
+	item, ok := p.intern(ev.Item)
+	if !ok {
+		return Click{}
+	}
 	p.cp.Touches++
 	c := p.Tracker.Observe(ev.Session, item, ev.TS, p.cp.Touches, p.nextSession, p.buf)
 	p.buf = c.Window[:0]
@@ -290,7 +318,10 @@ func (p *Pipeline) Track(ev *stream.Event) Click {
 
 // ApplyItem learns one valid catalogue record.
 func (p *Pipeline) ApplyItem(rec *stream.ItemRecord, ts int64) {
-	item, _ := p.Dict.Intern(rec.Item)
+	item, ok := p.intern(rec.Item)
+	if !ok {
+		return
+	}
 	info := models.ItemInfo{
 		Item:      item,
 		Attrs:     rec.Attrs,
@@ -347,11 +378,15 @@ func (p *Pipeline) Served(session string, items []string, ts int64) {
 
 // ApplyPrior learns one imported neighbour list.
 func (p *Pipeline) ApplyPrior(row *stream.PriorRow) {
-	item, _ := p.Dict.Intern(row.Item)
+	item, ok := p.intern(row.Item)
+	if !ok {
+		return
+	}
 	ns := make([]models.Scored, 0, len(row.Neighbors))
 	for _, n := range row.Neighbors {
-		id, _ := p.Dict.Intern(n.Item)
-		ns = append(ns, models.Scored{Item: id, Score: n.Weight})
+		if id, ok := p.intern(n.Item); ok {
+			ns = append(ns, models.Scored{Item: id, Score: n.Weight})
+		}
 	}
 	for _, m := range p.learners {
 		if pl, ok := m.(models.PriorLearner); ok {

@@ -16,6 +16,9 @@ type Checkpoint struct {
 	Rejected uint64 `json:"rejected"`
 	// Catalog counts applied catalogue records.
 	Catalog uint64 `json:"catalog,omitempty"`
+	// Overflow counts events and records on new items that arrived while
+	// the item dictionary was full; they are applied as no-ops.
+	Overflow uint64 `json:"overflow,omitempty"`
 	// DecayRef is the landmark reference time of the decayed counts (unix ms).
 	DecayRef int64 `json:"decay_ref"`
 	// Watermark is the latest event time applied (unix ms).

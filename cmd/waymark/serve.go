@@ -41,6 +41,7 @@ type serveFlags struct {
 	window   int
 	timeout  time.Duration
 	maxSess  int
+	maxItems int
 	capItem  int
 	srWindow int
 	flushInt time.Duration
@@ -81,6 +82,7 @@ func newServeFlags(name string, stderr io.Writer) *serveFlags {
 	fs.IntVar(&f.window, "window", d.Engine.Pipeline.Tracker.Window, "recent clicks kept per session")
 	fs.DurationVar(&f.timeout, "session-timeout", d.Engine.Pipeline.Tracker.Timeout, "event-time inactivity that ends a session")
 	fs.IntVar(&f.maxSess, "max-sessions", d.Engine.Pipeline.Tracker.MaxSessions, "sessions tracked at once (least recently active evicted)")
+	fs.IntVar(&f.maxItems, "max-items", d.Engine.Pipeline.MaxItems, "item dictionary cap; clicks on new items beyond it are counted as overflow and not learned")
 	fs.IntVar(&f.capItem, "neighbors-per-item", d.Engine.Pipeline.Set.CapPerItem, "neighbour list cap per item and model")
 	fs.IntVar(&f.srWindow, "sr-window", d.Engine.Pipeline.Set.SRWindow, "Sequential Rules window m")
 	fs.DurationVar(&f.flushInt, "flush-interval", d.Engine.FlushInterval, "longest time between flushes to the store")
@@ -130,7 +132,7 @@ func (f *serveFlags) options(log *slog.Logger) (session.ServiceOptions, error) {
 	o.Engine.FlushInterval, o.Engine.FlushEvents = f.flushInt, f.flushEv
 	o.Engine.CatalogSubject = f.catalog
 	p := &o.Engine.Pipeline
-	p.HalfLife = f.halfLife
+	p.HalfLife, p.MaxItems = f.halfLife, f.maxItems
 	p.Tracker.Window, p.Tracker.Timeout, p.Tracker.MaxSessions = f.window, f.timeout, f.maxSess
 	p.Set.CapPerItem, p.Set.SRWindow = f.capItem, f.srWindow
 	p.Models = []string{f.blend}
