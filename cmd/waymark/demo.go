@@ -138,11 +138,43 @@ func demo(ctx context.Context, out, stderr io.Writer, keep bool, httpAddr, natsA
 	}
 	fmt.Fprintf(out, "It is now among the top 5 next items after %d of the other %d items in %s.\n\n", shown, len(sc.Items)/len(cats)-1, launched.Category)
 
+	// An item launched this minute: a catalogue record, no clicks yet.
+	brandNew := stream.ItemRecord{Item: "tent-storm-new", Attrs: map[string][]string{
+		"category": {launched.Category}, "tags": {"storm", "tent", "shelter"}, "title": {"new storm tent"}}}
+	if err := svc.Bus().PublishRaw(ctx, svc.Bus().Options().CatalogSubject, [][]byte{brandNew.AppendJSON(nil)}); err != nil {
+		return err
+	}
+	if err := waitCatalog(ctx, svc.Engine(), uint64(len(sc.Catalog)+1), 10*time.Second); err != nil {
+		return err
+	}
+	res, err := c.next([]string{brandNew.Item}, 5)
+	if err != nil {
+		return err
+	}
+	fmt.Fprintf(out, "%s was added to the catalogue a moment ago and nobody has clicked it; a visitor who lands on it gets:\n", brandNew.Item)
+	printItems(out, res.Items)
+	beside := 0
+	for _, it := range sc.Items {
+		if it.Category != launched.Category {
+			continue
+		}
+		r, err := c.next([]string{it.ID}, 10)
+		if err != nil {
+			return err
+		}
+		for _, x := range r.Items {
+			if x.Item == brandNew.Item {
+				beside++
+			}
+		}
+	}
+	fmt.Fprintf(out, "From its catalogue record alone it is among the top 10 next items of %d of the %d other tents.\n\n", beside, len(sc.Items)/len(cats))
+
 	var st session.Stats
 	if err := c.get("/v1/stats", &st); err != nil {
 		return err
 	}
-	fmt.Fprintf(out, "Stats: %d events applied, %d items, %d sessions tracked, store %d KiB.\n", st.EventsApplied, st.Items, st.SessionsActive, st.StoreBytes/1024)
+	fmt.Fprintf(out, "Stats: %d events and %d catalogue records applied, %d items, %d sessions tracked.\n", st.EventsApplied, st.CatalogApplied, st.Items, st.SessionsActive)
 	if !keep {
 		fmt.Fprintln(out, "Run 'waymark demo --keep' to keep the service running and try it with curl.")
 		return nil
@@ -200,6 +232,21 @@ func waitApplied(ctx context.Context, eng *session.Engine, n uint64, limit time.
 		case <-ctx.Done():
 			return ctx.Err()
 		case <-time.After(50 * time.Millisecond):
+		}
+	}
+	return nil
+}
+
+func waitCatalog(ctx context.Context, eng *session.Engine, n uint64, limit time.Duration) error {
+	deadline := time.Now().Add(limit)
+	for eng.Stats().CatalogApplied < n {
+		if time.Now().After(deadline) {
+			return fmt.Errorf("only %d of %d catalogue records applied after %s", eng.Stats().CatalogApplied, n, limit)
+		}
+		select {
+		case <-ctx.Done():
+			return ctx.Err()
+		case <-time.After(20 * time.Millisecond):
 		}
 	}
 	return nil
