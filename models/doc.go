@@ -17,6 +17,27 @@
 // as cosine similarity can be read straight from the stored values. Stored
 // values only grow, which also makes incremental top-N lists exact.
 //
+// # The methods
+//
+// Pop, Markov, SR and IKNN learn from clicks; SKNN, V-SKNN and V-STAN keep
+// an index of recent past sessions and let the most similar vote; Content
+// learns TF-IDF neighbours from catalogue records, so an item nobody has
+// clicked has neighbours; Fresh explores young items by Thompson sampling;
+// Trending ranks popularity per context; Prior carries item-item statistics
+// imported from another deployment and fades as local clicks arrive. A
+// [Blend] combines signals; [Set] builds any of them from a spec such as
+// "sr(window=5)" and shares one instance among all users of a spec.
+//
+// # Cold start
+//
+// A new visitor with no clicks gets popularity, or popularity in the
+// request's context (Trending), or a session seeded from declared
+// preferences (Set.SeedQuery). A new item gets content neighbours from its
+// record at once, and the blend weighs content by n0/(n0+n) of the clicks
+// the pair has, so collaborative evidence takes over as it accumulates. A
+// new site gets priors. Items marked unavailable in the catalogue are never
+// recommended.
+//
 // # Persistence
 //
 // Models never touch the disk. A model that keeps state implements
