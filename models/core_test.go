@@ -2,6 +2,7 @@ package models
 
 import (
 	"math"
+	"slices"
 	"testing"
 )
 
@@ -142,5 +143,29 @@ func TestParseSpec(t *testing.T) {
 		if _, err := s.Get(bad); err == nil {
 			t.Errorf("Get(%q) should fail", bad)
 		}
+	}
+}
+
+// TestTopListMatchesFullSort: after every growth the list equals the n
+// best by a full sort (common practice: check an incremental structure
+// against the plain computation).
+func TestTopListMatchesFullSort(t *testing.T) {
+	var v vector
+	tl := newTopList(20, v.get)
+	rng := uint64(1)
+	for step := 0; step < 5000; step++ {
+		rng = rng*6364136223846793005 + 1442695040888963407
+		id := ItemID(rng>>33) % 300
+		w := float64(1 + (rng>>20)%7)
+		if step > 2500 {
+			w *= 3 // newer clicks weigh more, as landmark weights do
+		}
+		v.add(id, w)
+		tl.touch(id)
+	}
+	want := newTopList(20, v.get)
+	want.rebuild(300)
+	if !slices.Equal(tl.items, want.items) {
+		t.Fatalf("incremental %v\nfull sort   %v", tl.items, want.items)
 	}
 }

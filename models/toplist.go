@@ -1,72 +1,108 @@
 package models
 
-import "sort"
+import (
+	"slices"
+	"sort"
+)
 
 // topList keeps the n items of highest value, exactly, under the condition
 // that values never decrease (true of landmark-decayed counts). An item
 // outside the list can only enter by growing past the list's minimum.
+//
+// The list is a sorted slice with the value each item had when placed
+// beside it, so finding an item is a binary search and moving it one
+// memmove: a flood of new items, each outranking the old ones (a newer click
+// weighs more), costs log n per click rather than a walk through the list.
 type topList struct {
 	n     int
-	items []ItemID // sorted by value desc, id asc
-	pos   map[ItemID]int
+	items []ItemID  // value desc, id asc
+	vals  []float64 // vals[i] is items[i]'s value when placed
+	in    []bool    // indexed by item: on the list
 	val   func(ItemID) float64
 }
 
 func newTopList(n int, val func(ItemID) float64) *topList {
-	return &topList{n: n, pos: make(map[ItemID]int, n), val: val}
+	return &topList{n: n, val: val}
 }
 
-func (t *topList) less(a, b ItemID) bool { // a ranks before b
-	va, vb := t.val(a), t.val(b)
+// before reports whether (va, a) ranks before (vb, b).
+func before(va float64, a ItemID, vb float64, b ItemID) bool {
 	if va != vb {
 		return va > vb
 	}
 	return a < b
 }
 
+// search returns the first index whose entry does not rank before (v, id).
+func (t *topList) search(v float64, id ItemID) int {
+	return sort.Search(len(t.items), func(i int) bool { return !before(t.vals[i], t.items[i], v, id) })
+}
+
+func (t *topList) onList(id ItemID) bool { return int(id) < len(t.in) && t.in[id] }
+
+func (t *topList) setIn(id ItemID, on bool) {
+	if int(id) >= len(t.in) {
+		t.in = slices.Grow(t.in, int(id)+1-len(t.in))[:int(id)+1]
+	}
+	t.in[id] = on
+}
+
 // touch updates the list after id's value grew.
 func (t *topList) touch(id ItemID) {
-	i, ok := t.pos[id]
-	if !ok {
-		if len(t.items) >= t.n {
-			last := t.items[len(t.items)-1]
-			if !t.less(id, last) {
-				return
-			}
-			delete(t.pos, last)
-			t.items = t.items[:len(t.items)-1]
+	v := t.val(id)
+	if t.onList(id) {
+		i := t.find(id, v)
+		t.items = slices.Delete(t.items, i, i+1)
+		t.vals = slices.Delete(t.vals, i, i+1)
+	} else if len(t.items) >= t.n {
+		last := len(t.items) - 1
+		if !before(v, id, t.vals[last], t.items[last]) {
+			return
 		}
-		t.items = append(t.items, id)
-		i = len(t.items) - 1
-		t.pos[id] = i
+		t.setIn(t.items[last], false)
+		t.items, t.vals = t.items[:last], t.vals[:last]
 	}
-	// bubble up
-	for i > 0 && t.less(id, t.items[i-1]) {
-		prev := t.items[i-1]
-		t.items[i] = prev
-		t.pos[prev] = i
-		i--
+	j := t.search(v, id)
+	t.items = slices.Insert(t.items, j, id)
+	t.vals = slices.Insert(t.vals, j, v)
+	t.setIn(id, true)
+}
+
+// find returns the index of id, known to be on the list with a stored
+// value at most v (values only grow).
+func (t *topList) find(id ItemID, v float64) int {
+	// Entries ranking before (v, id) cannot be id's old place unless they
+	// tie on id, which they cannot: start at the first entry not before
+	// (v, id) and walk to id. Old and new values are usually close, so the
+	// walk is short.
+	for i := t.search(v, id); i < len(t.items); i++ {
+		if t.items[i] == id {
+			return i
+		}
 	}
-	t.items[i] = id
-	t.pos[id] = i
+	// Not reached while the invariant holds; a full scan keeps it safe.
+	return slices.Index(t.items, id)
 }
 
 // rebuild recomputes the list from scratch over ids 0..count-1.
 func (t *topList) rebuild(count int) {
-	t.items = t.items[:0]
-	clear(t.pos)
+	for _, id := range t.items {
+		t.setIn(id, false)
+	}
 	all := make([]ItemID, 0, count)
 	for id := 0; id < count; id++ {
 		if t.val(ItemID(id)) > 0 {
 			all = append(all, ItemID(id))
 		}
 	}
-	sort.Slice(all, func(i, j int) bool { return t.less(all[i], all[j]) })
+	sort.Slice(all, func(i, j int) bool { return before(t.val(all[i]), all[i], t.val(all[j]), all[j]) })
 	if len(all) > t.n {
 		all = all[:t.n]
 	}
-	t.items = append(t.items, all...)
-	for i, id := range t.items {
-		t.pos[id] = i
+	t.items = append(t.items[:0], all...)
+	t.vals = t.vals[:0]
+	for _, id := range t.items {
+		t.vals = append(t.vals, t.val(id))
+		t.setIn(id, true)
 	}
 }

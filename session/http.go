@@ -203,7 +203,7 @@ func (s *Server) decodeBody(w http.ResponseWriter, r *http.Request, v any) bool 
 		writeError(w, http.StatusBadRequest, CodeInvalidJSON, "body: "+err.Error())
 		return false
 	}
-	if dec.More() {
+	if len(bytes.TrimSpace(b[dec.InputOffset():])) > 0 { // dec.More misses a trailing } or ]
 		writeError(w, http.StatusBadRequest, CodeInvalidJSON, "body: more than one JSON value")
 		return false
 	}

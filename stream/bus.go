@@ -113,7 +113,15 @@ func (b *Bus) Options() BusOptions { return b.opts }
 // EnsureStreams creates the events stream and the dead-letter stream, or
 // brings existing ones in line with the options. Subjects that someone else
 // added to an existing stream are kept. It is idempotent.
-func (b *Bus) EnsureStreams(ctx context.Context) error {
+func (b *Bus) EnsureStreams(ctx context.Context) error { return b.ensureStreams(ctx, true) }
+
+// CreateStreams creates the streams when they are missing and leaves
+// existing ones as they are. Producers (send, priors import) use it, so a
+// producer with default options never resets what serve or an operator
+// configured, such as replicas or retention.
+func (b *Bus) CreateStreams(ctx context.Context) error { return b.ensureStreams(ctx, false) }
+
+func (b *Bus) ensureStreams(ctx context.Context, update bool) error {
 	o := b.opts
 	events := jetstream.StreamConfig{
 		Name:        o.Stream,
@@ -127,7 +135,7 @@ func (b *Bus) EnsureStreams(ctx context.Context) error {
 		MaxBytes:    maxBytes(o.MaxBytes),
 		MaxMsgs:     -1,
 	}
-	if err := b.ensureStream(ctx, events); err != nil {
+	if err := b.ensureStream(ctx, events, update); err != nil {
 		return err
 	}
 	dead := jetstream.StreamConfig{
@@ -142,7 +150,7 @@ func (b *Bus) EnsureStreams(ctx context.Context) error {
 		MaxBytes:    -1,
 		MaxMsgs:     -1,
 	}
-	return b.ensureStream(ctx, dead)
+	return b.ensureStream(ctx, dead, update)
 }
 
 func maxBytes(n int64) int64 {
@@ -152,7 +160,7 @@ func maxBytes(n int64) int64 {
 	return n
 }
 
-func (b *Bus) ensureStream(ctx context.Context, want jetstream.StreamConfig) error {
+func (b *Bus) ensureStream(ctx context.Context, want jetstream.StreamConfig, update bool) error {
 	s, err := b.js.Stream(ctx, want.Name)
 	if errors.Is(err, jetstream.ErrStreamNotFound) {
 		if _, err := b.js.CreateStream(ctx, want); err != nil {
@@ -165,6 +173,9 @@ func (b *Bus) ensureStream(ctx context.Context, want jetstream.StreamConfig) err
 		return fmt.Errorf("look up stream %s: %w", want.Name, err)
 	}
 	have := s.CachedInfo().Config
+	if !update {
+		return nil
+	}
 	if have.Storage != want.Storage {
 		return fmt.Errorf("stream %s exists with %s storage; waymark needs %s (delete or rename it)", want.Name, have.Storage, want.Storage)
 	}

@@ -153,7 +153,7 @@ func priorsImport(ctx context.Context, args []string, stdout, stderr io.Writer) 
 		return 1
 	}
 	defer bus.Close()
-	if err := bus.EnsureStreams(ctx); err != nil {
+	if err := bus.CreateStreams(ctx); err != nil {
 		fmt.Fprintln(stderr, "waymark priors import:", err)
 		return 1
 	}

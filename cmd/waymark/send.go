@@ -47,7 +47,7 @@ func runSend(ctx context.Context, args []string, stdout, stderr io.Writer) int {
 		return 1
 	}
 	defer bus.Close()
-	if err := bus.EnsureStreams(ctx); err != nil {
+	if err := bus.CreateStreams(ctx); err != nil {
 		fmt.Fprintln(stderr, "waymark send:", err)
 		return 1
 	}

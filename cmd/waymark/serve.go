@@ -35,6 +35,9 @@ type serveFlags struct {
 	catalog  string
 	dlq      string
 	replicas int
+	maxAge   time.Duration
+	maxBytes int64
+	memtable int64
 	blend    string
 	models   string
 	halfLife time.Duration
@@ -75,6 +78,9 @@ func newServeFlags(name string, stderr io.Writer) *serveFlags {
 	fs.StringVar(&f.subject, "subject", d.Bus.Subject, "`subject` of click events")
 	fs.StringVar(&f.catalog, "catalog-subject", d.Bus.CatalogSubject, "`subject` of catalogue records")
 	fs.IntVar(&f.replicas, "stream-replicas", d.Bus.Replicas, "replicas of the JetStream streams (3 on a three-node cluster)")
+	fs.DurationVar(&f.maxAge, "stream-max-age", 0, "retention of the events stream: drop messages older than this (0: keep; snapshots must cover what is dropped)")
+	fs.Int64Var(&f.maxBytes, "stream-max-bytes", 0, "retention of the events stream in bytes (0: no limit)")
+	fs.Int64Var(&f.memtable, "store-memtable-mib", d.Store.MemTableSize>>20, "Badger memtable size in MiB: memory use against the largest flush that fits one transaction")
 	fs.StringVar(&f.dlq, "dead-letter-subject", d.Bus.DeadLetterSubject, "`subject` rejected messages are copied to")
 	fs.StringVar(&f.blend, "blend", models.DefaultBlendSpec, "blend `spec` that answers queries, e.g. blend(markov=1,sr=1,iknn=1,pop=0.1)")
 	fs.StringVar(&f.models, "models", "", "extra model `specs` to learn, comma-separated")
@@ -126,7 +132,8 @@ func (f *serveFlags) options(log *slog.Logger) (session.ServiceOptions, error) {
 	o.Bus.TLSCert, o.Bus.TLSKey, o.Bus.TLSCA = f.tlsCert, f.tlsKey, f.tlsCA
 	o.Bus.Stream, o.Bus.Subject, o.Bus.CatalogSubject, o.Bus.DeadLetterSubject = f.stream, f.subject, f.catalog, f.dlq
 	o.Bus.Name = "waymark-serve"
-	o.Bus.Replicas = f.replicas
+	o.Bus.Replicas, o.Bus.MaxAge, o.Bus.MaxBytes = f.replicas, f.maxAge, f.maxBytes
+	o.Store.MemTableSize = f.memtable << 20
 	o.Engine.Blend = f.blend
 	o.Engine.ExploreEvery, o.Engine.ExploreSeed, o.Engine.Fresh = f.explore, f.seed, f.fresh
 	o.Engine.FlushInterval, o.Engine.FlushEvents = f.flushInt, f.flushEv

@@ -1,0 +1,322 @@
+package session
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"os"
+	"strings"
+	"sync/atomic"
+	"testing"
+	"time"
+
+	"github.com/nats-io/nats.go/jetstream"
+
+	"waymark/models"
+	"waymark/stream"
+)
+
+// restartableCluster is a three-node JetStream cluster on loopback whose
+// nodes can be stopped and started again on the same folders and ports,
+// as an operator restarts a failed NATS server.
+type restartableCluster struct {
+	t     *testing.T
+	opts  []stream.ServerOptions
+	nodes []*stream.Server
+	urls  []string
+}
+
+func startRestartableCluster(t *testing.T) *restartableCluster {
+	t.Helper()
+	c := &restartableCluster{t: t}
+	var routes, clusterAddrs []string
+	for i := 0; i < 3; i++ {
+		clusterAddrs = append(clusterAddrs, freeAddr(t))
+		routes = append(routes, "nats-route://"+clusterAddrs[i])
+	}
+	for i := 0; i < 3; i++ {
+		client := freeAddr(t)
+		c.opts = append(c.opts, stream.ServerOptions{
+			Dir: t.TempDir(), Listen: client, Name: fmt.Sprintf("n%d", i+1),
+			Cluster: &stream.ClusterOptions{Name: "waymark-nodefail", Listen: clusterAddrs[i], Routes: routes},
+		})
+		c.urls = append(c.urls, "nats://"+client)
+	}
+	c.nodes = make([]*stream.Server, 3)
+	errs := make(chan error, 3)
+	for i := range c.nodes {
+		go func(i int) { errs <- c.start(i) }(i)
+	}
+	for range c.nodes {
+		if err := <-errs; err != nil {
+			t.Fatalf("cluster node: %v", err)
+		}
+	}
+	t.Cleanup(func() {
+		for i := range c.nodes {
+			c.stop(i)
+		}
+	})
+	bo := c.busOptions()
+	waitFor(t, "JetStream cluster ready", 60*time.Second, func() bool {
+		ctx, cancel := context.WithTimeout(context.Background(), 5*time.Second)
+		defer cancel()
+		b, err := stream.Connect(ctx, bo)
+		if err != nil {
+			return false
+		}
+		defer b.Close()
+		return b.EnsureStreams(ctx) == nil
+	})
+	return c
+}
+
+func (c *restartableCluster) start(i int) error {
+	ctx, cancel := context.WithTimeout(context.Background(), 60*time.Second)
+	defer cancel()
+	s, err := stream.StartServer(ctx, c.opts[i])
+	c.nodes[i] = s
+	return err
+}
+
+func (c *restartableCluster) stop(i int) {
+	if c.nodes[i] != nil {
+		if err := c.nodes[i].Shutdown(context.Background()); err != nil {
+			c.t.Errorf("stop node %d: %v", i+1, err)
+		}
+		c.nodes[i] = nil
+	}
+}
+
+func (c *restartableCluster) busOptions() stream.BusOptions {
+	bo := stream.DefaultBusOptions()
+	bo.URL, bo.Replicas = strings.Join(c.urls, ","), 3
+	bo.ReconnectWait = 100 * time.Millisecond
+	return bo
+}
+
+// streamLeader returns the index of the node leading the events stream.
+func (c *restartableCluster) streamLeader(ctx context.Context, js jetstream.JetStream) (int, error) {
+	st, err := js.Stream(ctx, "WAYMARK")
+	if err != nil {
+		return -1, err
+	}
+	info, err := st.Info(ctx)
+	if err != nil {
+		return -1, err
+	}
+	if info.Cluster == nil {
+		return -1, errors.New("stream info without cluster info")
+	}
+	for i, o := range c.opts {
+		if o.Name == info.Cluster.Leader {
+			return i, nil
+		}
+	}
+	return -1, fmt.Errorf("stream leader %q is not a node of the cluster", info.Cluster.Leader)
+}
+
+// TestNodeFailureDuringIngest stops NATS nodes of a three-node cluster
+// while a producer is publishing, first the stream's leader and then
+// another node, and starts each again on its folder. The producer retries
+// failed batches; events carry ids, so JetStream's duplicate window makes
+// a retry idempotent. At the end the stream must hold every event exactly
+// once, both service replicas must have applied exactly that many, and
+// both must answer exactly like a clean pipeline fed the stream's messages
+// in the stream's order. WAYMARK_LONG=1 runs 200,000 events instead of
+// 10,000.
+func TestNodeFailureDuringIngest(t *testing.T) {
+	if testing.Short() {
+		t.Skip("starts a three-node cluster and publishes through node failures")
+	}
+	n := 10_000
+	if os.Getenv("WAYMARK_LONG") != "" {
+		n = 200_000
+	}
+	evs := msnbcEvents(t, n)
+	if len(evs) < n {
+		t.Fatalf("dataset gave %d events, want %d", len(evs), n)
+	}
+	for i := range evs {
+		evs[i].ID = fmt.Sprintf("nf-%d", i)
+	}
+	cl := startRestartableCluster(t)
+	onCluster := func(o *ServiceOptions) {
+		o.Bus.URL, o.Bus.Replicas = strings.Join(cl.urls, ","), 3
+		o.Bus.ReconnectWait = 100 * time.Millisecond
+	}
+	a := newTestService(t, t.TempDir(), onCluster)
+	defer shutdown(t, a)
+	b := newTestService(t, t.TempDir(), onCluster)
+	defer shutdown(t, b)
+
+	ctx, cancel := context.WithTimeout(context.Background(), 10*time.Minute)
+	defer cancel()
+	bo := cl.busOptions()
+	bo.Name, bo.AckTimeout = "nodefail-producer", 5*time.Second
+	prod, err := stream.Connect(ctx, bo)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer prod.Close()
+
+	// The producer: batches of 500, each retried until JetStream has
+	// acknowledged every message of it.
+	const batch = 500
+	var published, retries atomic.Int64
+	done := make(chan error, 1)
+	go func() {
+		for i := 0; i < len(evs); i += batch {
+			part := evs[i:min(i+batch, len(evs))]
+			for {
+				pctx, pcancel := context.WithTimeout(ctx, 10*time.Second)
+				err := prod.PublishEvents(pctx, part)
+				pcancel()
+				if err == nil {
+					break
+				}
+				if ctx.Err() != nil {
+					done <- fmt.Errorf("batch at %d: %w (last error %v)", i, ctx.Err(), err)
+					return
+				}
+				retries.Add(1)
+				time.Sleep(100 * time.Millisecond)
+			}
+			published.Store(int64(i + len(part)))
+			time.Sleep(2 * time.Millisecond) // a steady stream, not one burst
+		}
+		done <- nil
+	}()
+	waitPublished := func(k int) {
+		t.Helper()
+		waitFor(t, fmt.Sprintf("%d events published", k), 5*time.Minute, func() bool { return published.Load() >= int64(k) })
+	}
+
+	// Round 1: the stream leader fails at a fifth of the stream and comes
+	// back at two fifths; round 2: another node fails at three fifths and
+	// comes back at four fifths.
+	waitPublished(n / 5)
+	leader, err := cl.streamLeader(ctx, prod.JetStream())
+	if err != nil {
+		t.Fatal(err)
+	}
+	t.Logf("stopping the stream leader n%d at %d published", leader+1, published.Load())
+	cl.stop(leader)
+	waitPublished(2 * n / 5)
+	if err := cl.start(leader); err != nil {
+		t.Fatal(err)
+	}
+	t.Logf("n%d back at %d published", leader+1, published.Load())
+	waitPublished(3 * n / 5)
+	other := (leader + 1) % 3
+	t.Logf("stopping n%d at %d published", other+1, published.Load())
+	cl.stop(other)
+	waitPublished(4 * n / 5)
+	if err := cl.start(other); err != nil {
+		t.Fatal(err)
+	}
+	t.Logf("n%d back at %d published", other+1, published.Load())
+	if err := <-done; err != nil {
+		t.Fatal(err)
+	}
+	t.Logf("%d events published with %d batch retries", n, retries.Load())
+
+	// The log holds every event exactly once.
+	var msgs []stream.Msg
+	waitFor(t, "the stream to hold every event", 60*time.Second, func() bool {
+		last, err := prod.LastSequence(ctx)
+		return err == nil && last >= uint64(n)
+	})
+	if last, err := prod.LastSequence(ctx); err != nil || last != uint64(n) {
+		t.Fatalf("stream last sequence %d (%v), want exactly %d", last, err, n)
+	}
+	msgs = readStream(t, ctx, prod, n)
+	seen := make(map[string]bool, n)
+	for _, m := range msgs {
+		ev, err := stream.DecodeMsg(m)
+		if err != nil {
+			t.Fatalf("stream message %d: %v", m.Seq, err)
+		}
+		if seen[ev.ID] {
+			t.Fatalf("event %s is in the stream twice (second at seq %d)", ev.ID, m.Seq)
+		}
+		seen[ev.ID] = true
+	}
+	if len(seen) != n {
+		t.Fatalf("the stream holds %d distinct events, %d were published", len(seen), n)
+	}
+
+	applied := func(s *Service) uint64 { return s.Engine().Stats().EventsApplied }
+	waitFor(t, "both replicas apply every event", 2*time.Minute, func() bool {
+		return applied(a) == uint64(n) && applied(b) == uint64(n)
+	})
+	time.Sleep(500 * time.Millisecond) // a late duplicate would show now
+	if applied(a) != uint64(n) || applied(b) != uint64(n) {
+		t.Fatalf("events_applied %d and %d, want exactly %d", applied(a), applied(b), n)
+	}
+
+	// Both replicas equal a clean pipeline fed the log in its order.
+	p, err := NewPipeline(DefaultEngineOptions().Pipeline)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, m := range msgs {
+		ev, _ := stream.DecodeMsg(m)
+		p.Apply(&ev)
+	}
+	im, _ := p.Set.Get("iknn")
+	iknn := im.(*models.IKNN)
+	wm := p.Checkpoint().Watermark
+	for id := 0; id < p.Dict.Len(); id++ {
+		name := p.Dict.Name(uint32(id))
+		want := iknn.Neighbors(uint32(id), 20, wm)
+		for _, s := range []*Service{a, b} {
+			got, _ := s.Engine().Neighbors(name, 20)
+			if len(got) != len(want) {
+				t.Fatalf("%s: %d neighbours, clean pipeline %d", name, len(got), len(want))
+			}
+			for i, w := range want {
+				if got[i].Item != p.Dict.Name(w.Item) || got[i].Score != w.Score {
+					t.Fatalf("%s neighbour %d: %s %v, clean pipeline %s %v", name, i, got[i].Item, got[i].Score, p.Dict.Name(w.Item), w.Score)
+				}
+			}
+		}
+	}
+	for _, q := range []ScoreRequest{
+		{Items: []string{evs[0].Item}, Candidates: []string{evs[1].Item, evs[2].Item, evs[3].Item}},
+		{Items: []string{evs[n-2].Item, evs[n-1].Item}, Candidates: []string{evs[n/2].Item, "unknown"}},
+	} {
+		x, y := a.Engine().Score(q), b.Engine().Score(q)
+		if fmt.Sprint(x) != fmt.Sprint(y) {
+			t.Fatalf("score %+v: replicas differ:\n%v\n%v", q, x, y)
+		}
+	}
+	t.Logf("stream %d messages, both replicas %d applied, %d items identical to the clean pipeline", len(msgs), n, p.Dict.Len())
+}
+
+// readStream reads the first n messages of the events stream in order.
+func readStream(t *testing.T, ctx context.Context, b *stream.Bus, n int) []stream.Msg {
+	t.Helper()
+	cons, err := b.JetStream().OrderedConsumer(ctx, b.Options().Stream, jetstream.OrderedConsumerConfig{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	it, err := cons.Messages()
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer it.Stop()
+	out := make([]stream.Msg, 0, n)
+	for len(out) < n {
+		m, err := it.Next()
+		if err != nil {
+			t.Fatalf("read stream after %d: %v", len(out), err)
+		}
+		md, err := m.Metadata()
+		if err != nil {
+			t.Fatal(err)
+		}
+		out = append(out, stream.Msg{Seq: md.Sequence.Stream, Subject: m.Subject(), Data: m.Data()})
+	}
+	return out
+}
