@@ -193,7 +193,7 @@ func (b *Blend) blend(q *Query, popN int, out Scores, feats map[ItemID][]float64
 		s.Model.Candidates(q, part)
 		d := int64(time.Since(start))
 		b.cost[si].Store((b.cost[si].Load()*7 + d) / 8)
-		mx := maxScore(part)
+		mx := normaliser(s.Model, maxScore(part))
 		if mx <= 0 {
 			continue
 		}
@@ -255,6 +255,23 @@ func (b *Blend) blend(q *Query, popN int, out Scores, feats map[ItemID][]float64
 		}
 	}
 	return collab, skipped
+}
+
+// absolute is a model whose scores are already on the blend's [0, 1]
+// scale and carry meaning in their size, so the blend must not divide them
+// by the query's best: the prior's import weight and its fading as local
+// clicks arrive would cancel.
+type absolute interface {
+	absoluteScores()
+}
+
+// normaliser returns what a signal's scores are divided by: their best,
+// or 1 for a model with absolute scores that have any candidate.
+func normaliser(m Model, best float64) float64 {
+	if _, ok := m.(absolute); ok && best > 0 {
+		return 1
+	}
+	return best
 }
 
 func maxScore(s Scores) float64 {
@@ -323,7 +340,7 @@ func (b *Blend) Score(q *Query, items []ItemID) []ScoreRow {
 		s.Model.ScoreItems(q, items, raw)
 		// A signal may score items it would not propose; keep features
 		// within [0, 1] all the same.
-		mx = max(mx, slices.Max(append(raw[:len(raw):len(raw)], 0)))
+		mx = normaliser(s.Model, max(mx, slices.Max(append(raw[:len(raw):len(raw)], 0))))
 		if mx <= 0 {
 			continue
 		}

@@ -15,7 +15,9 @@ import (
 //
 // with n_a the decayed local click count of a and n0 the spec's n0
 // (default 20). An item with n0 local clicks keeps half its prior; the
-// collaborative signals, learning from local clicks, take over.
+// collaborative signals, learning from local clicks, take over. Inside a
+// blend these scores count as they are (not divided by the query's best),
+// so both the import weight and the fading show in the blended score.
 type Prior struct {
 	n0     float64
 	rows   *pairTable
@@ -32,14 +34,21 @@ func NewPrior(n0 float64, pop *Pop) *Prior {
 
 func (p *Prior) Name() string { return fmt.Sprintf("prior(n0=%g)", p.n0) }
 
+func (p *Prior) absoluteScores() {}
+
 // Observe does nothing: local clicks reach the prior through popularity.
 func (p *Prior) Observe(*Observation) {}
 
-// ObservePrior adds imported neighbours of item, already scaled.
+// ObservePrior takes imported neighbours of item, already scaled. Rows of
+// several exporting models (iknn, markov, sr) for one pair keep the
+// largest weight, so a pair's prior stays on the scale it was imported at.
 func (p *Prior) ObservePrior(item ItemID, neighbors []Scored) {
 	for _, n := range neighbors {
-		if n.Item != item && n.Score > 0 && !math.IsInf(n.Score, 0) {
-			p.rows.add(item, n.Item, n.Score)
+		if n.Item == item || !(n.Score > 0) || math.IsInf(n.Score, 0) {
+			continue
+		}
+		if have := p.rows.get(item, n.Item); n.Score > have {
+			p.rows.add(item, n.Item, n.Score-have)
 		}
 	}
 }

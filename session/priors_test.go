@@ -67,6 +67,15 @@ func TestPriorsCarryToANewSite(t *testing.T) {
 		t.Fatalf("site B with priors only: %+v", res)
 	}
 	before := res.Items[0].Features["prior"]
+	// In the blend the prior counts as imported: weight 0.5 times the best
+	// neighbour's 1, faded by nothing yet.
+	if before < 0.49 || before > 0.51 {
+		t.Fatalf("blended prior feature of b = %v, want the import weight 0.5", before)
+	}
+	feature := func() float64 {
+		r := b.Engine().Score(ScoreRequest{Items: []string{"a"}, Candidates: []string{"b"}})
+		return r.Candidates[0].Features["prior"]
+	}
 	// Local clicks on a fade the prior of a's neighbours by n0/(n0+n_a);
 	// read the prior model's raw score to see it.
 	raw := func() float64 {
@@ -87,6 +96,9 @@ func TestPriorsCarryToANewSite(t *testing.T) {
 	doJSON(t, "POST", "http://"+b.HTTPAddr()+"/v1/events", ev.String(), nil)
 	waitFor(t, "local clicks applied", 10*time.Second, func() bool { return b.Engine().Stats().EventsApplied == 40 })
 	r1 := raw()
+	if f := feature(); f/before < 0.32 || f/before > 0.34 {
+		t.Fatalf("blended prior feature after 40 local clicks: %v of %v, want a third", f, before)
+	}
 	// n0 = 20: 40 local clicks on a leave 20/(20+40) = 1/3 of the prior.
 	if r0 <= 0 || r1/r0 < 0.32 || r1/r0 > 0.34 {
 		t.Fatalf("prior of a→b: %v before local clicks, %v after 40 (want a third); feature before %v", r0, r1, before)
