@@ -177,3 +177,6 @@ func (m *IKNN) Rescale(f float64) {
 	m.support.rescale(f)
 	m.covis.rescale(f)
 }
+
+// DirtyBytes estimates the next flush's size.
+func (m *IKNN) DirtyBytes() int { return m.covis.dirtyBytes + 12*len(m.support.dirty) }

@@ -48,3 +48,6 @@ func (m *Markov) Prefix() string             { return m.prefix }
 func (m *Markov) Flush(kv KV) error          { return m.trans.flush(kv, m.prefix) }
 func (m *Markov) Load(key, val []byte) error { return m.trans.load(key[len(m.prefix):], val) }
 func (m *Markov) Rescale(f float64)          { m.trans.rescale(f) }
+
+// DirtyBytes estimates the next flush's size.
+func (m *Markov) DirtyBytes() int { return m.trans.dirtyBytes }

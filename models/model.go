@@ -135,3 +135,10 @@ type Forgetter interface {
 type ExposureLearner interface {
 	Served(sessionNo uint64, items []ItemID, ts int64)
 }
+
+// DirtySizer is a persistent model that can estimate how many bytes its
+// next Flush writes, so the caller flushes before a flush outgrows one
+// store transaction.
+type DirtySizer interface {
+	DirtyBytes() int
+}

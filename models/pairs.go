@@ -16,6 +16,9 @@ type pairTable struct {
 	rows  []pairRow
 	cap   int
 	dirty []ItemID // rows changed since the last flush
+	// dirtyBytes estimates what the next flush writes: 12 bytes a pair of
+	// the dirty rows. It may overcount pairs a prune removed.
+	dirtyBytes int
 }
 
 type pairRow = row
@@ -35,10 +38,14 @@ func (t *pairTable) row(a ItemID) *pairRow {
 // add adds w to the pair a→b.
 func (t *pairTable) add(a, b ItemID, w float64) {
 	r := t.row(a)
+	n := r.n
 	r.add(b, w)
 	if !r.dirty {
 		r.dirty = true
 		t.dirty = append(t.dirty, a)
+		t.dirtyBytes += 12*r.n + 16
+	} else if r.n > n {
+		t.dirtyBytes += 12
 	}
 	if t.cap > 0 && r.n > 2*t.cap {
 		prune(r, t.cap)
@@ -117,6 +124,7 @@ func (t *pairTable) flush(kv KV, prefix string) error {
 		}
 	}
 	t.dirty = t.dirty[:0]
+	t.dirtyBytes = 0
 	return nil
 }
 

@@ -67,3 +67,6 @@ func (p *Pop) Load(key, val []byte) error {
 
 // Rescale multiplies every count by f.
 func (p *Pop) Rescale(f float64) { p.counts.rescale(f) }
+
+// DirtyBytes estimates the next flush's size.
+func (p *Pop) DirtyBytes() int { return 20 * len(p.counts.dirty) }

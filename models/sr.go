@@ -59,3 +59,6 @@ func (m *SR) Prefix() string             { return m.prefix }
 func (m *SR) Flush(kv KV) error          { return m.rules.flush(kv, m.prefix) }
 func (m *SR) Load(key, val []byte) error { return m.rules.load(key[len(m.prefix):], val) }
 func (m *SR) Rescale(f float64)          { m.rules.rescale(f) }
+
+// DirtyBytes estimates the next flush's size.
+func (m *SR) DirtyBytes() int { return m.rules.dirtyBytes }

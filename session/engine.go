@@ -36,6 +36,10 @@ type EngineOptions struct {
 	// rewrites every neighbour row changed since the last one, so flushing
 	// less often writes less; a crash replays at most this much.
 	FlushInterval time.Duration
+	// FlushBytes flushes once the estimated size of the next flush
+	// reaches it (default 16 MiB): a flush is one store transaction, and
+	// a transaction has a size limit (about 15 % of the memtable).
+	FlushBytes int
 	// FlushEvents flushes after this many applied messages (default 200,000).
 	FlushEvents int
 	// CatalogSubject is the subject whose messages are catalogue records
@@ -57,6 +61,7 @@ func DefaultEngineOptions() EngineOptions {
 		Fresh:          "fresh",
 		FlushInterval:  time.Second,
 		FlushEvents:    200_000,
+		FlushBytes:     16 << 20,
 		CatalogSubject: "waymark.catalog",
 		ControlSubject: "waymark.control",
 	}
@@ -72,6 +77,9 @@ func (o *EngineOptions) validate() error {
 	}
 	if o.FlushEvents == 0 {
 		o.FlushEvents = d.FlushEvents
+	}
+	if o.FlushBytes == 0 {
+		o.FlushBytes = d.FlushBytes
 	}
 	if o.CatalogSubject == "" {
 		o.CatalogSubject = d.CatalogSubject
@@ -222,6 +230,10 @@ func (e *Engine) Handle(ctx context.Context, msgs []stream.Msg) error {
 		msgs = msgs[n:]
 	}
 	if e.pending >= e.opts.FlushEvents || (e.pending > 0 && time.Since(e.lastFlush) >= e.opts.FlushInterval) {
+		return e.Flush(ctx)
+	}
+	if e.pending > 0 && e.p.DirtyBytes() >= e.opts.FlushBytes {
+		e.met.sizeFlushes.Inc()
 		return e.Flush(ctx)
 	}
 	return nil

@@ -14,6 +14,7 @@ type metrics struct {
 	skipped      prometheus.Counter
 	flushSeconds prometheus.Histogram
 	flushBytes   prometheus.Histogram
+	sizeFlushes  prometheus.Counter
 	query        *prometheus.HistogramVec
 }
 
@@ -36,6 +37,9 @@ func newMetrics(reg prometheus.Registerer, e *Engine) *metrics {
 			Name: "waymark_flush_bytes", Help: "Key and value bytes of one flush.",
 			Buckets: prometheus.ExponentialBuckets(1024, 4, 10),
 		}),
+		sizeFlushes: prometheus.NewCounter(prometheus.CounterOpts{
+			Name: "waymark_flush_size_triggered_total", Help: "Flushes started early because the next flush neared the store's transaction limit.",
+		}),
 		query: prometheus.NewHistogramVec(prometheus.HistogramOpts{
 			Name: "waymark_query_seconds", Help: "Time to answer a query inside the engine, by endpoint and answering source.",
 			Buckets: prometheus.ExponentialBuckets(0.00001, 2, 16),
@@ -47,7 +51,7 @@ func newMetrics(reg prometheus.Registerer, e *Engine) *metrics {
 	gauge := func(name, help string, f func() float64) prometheus.Collector {
 		return prometheus.NewGaugeFunc(prometheus.GaugeOpts{Name: name, Help: help}, f)
 	}
-	reg.MustRegister(m.applied, m.rejected, m.skipped, m.flushSeconds, m.flushBytes, m.query,
+	reg.MustRegister(m.applied, m.rejected, m.skipped, m.flushSeconds, m.flushBytes, m.sizeFlushes, m.query,
 		gauge("waymark_consumer_lag_messages", "Stream messages not yet applied.", func() float64 { return float64(e.Lag()) }),
 		gauge("waymark_last_sequence", "Last stream sequence applied.", func() float64 { return float64(e.lastSeq.Load()) }),
 		gauge("waymark_sessions_tracked", "Sessions currently tracked.", func() float64 { return float64(e.p.Tracker.Len()) }),

@@ -417,3 +417,15 @@ func (p *Pipeline) ExportPriors(f func(row stream.PriorRow) error) error {
 	}
 	return nil
 }
+
+// DirtyBytes estimates what the next Flush writes, from the models that can
+// tell and the session windows.
+func (p *Pipeline) DirtyBytes() int {
+	n := p.Tracker.DirtyBytes()
+	for _, m := range p.learners {
+		if d, ok := m.(models.DirtySizer); ok {
+			n += d.DirtyBytes()
+		}
+	}
+	return n
+}

@@ -252,6 +252,18 @@ func (t *Tracker) Len() int {
 	return n
 }
 
+// DirtyBytes estimates what the next Flush writes.
+func (t *Tracker) DirtyBytes() int {
+	n := 0
+	for i := range t.shards {
+		s := &t.shards[i]
+		s.mu.Lock()
+		n += len(s.dirty)*(48+8*t.opts.Window) + 32*len(s.deleted)
+		s.mu.Unlock()
+	}
+	return n
+}
+
 // sessionPrefix is the store prefix of session windows.
 const sessionPrefix = "s/"
 
