@@ -428,28 +428,17 @@ func (s *Server) postScore(w http.ResponseWriter, r *http.Request) {
 }
 
 func (s *Server) postNextBatch(w http.ResponseWriter, r *http.Request) {
-	var body nextBatchBody
-	if !s.decodeBody(w, r, &body) {
-		return
-	}
-	if len(body.Requests) > maxBatch {
-		writeAPIError(w, badParam("requests: %d entries, at most %d", len(body.Requests), maxBatch))
-		return
-	}
-	rep := batchReply{Results: make([]batchEntry, len(body.Requests))}
-	for i, b := range body.Requests {
-		res, aerr := s.doNext(b)
-		if aerr != nil {
-			rep.Results[i].Error = aerr
-			continue
-		}
-		rep.Results[i].Result = res
-	}
-	writeJSON(w, http.StatusOK, rep)
+	serveBatch(s, w, r, s.doNext)
 }
 
 func (s *Server) postScoreBatch(w http.ResponseWriter, r *http.Request) {
-	var body scoreBatchBody
+	serveBatch(s, w, r, s.doScore)
+}
+
+// serveBatch answers {"requests":[...]} with one result or error per
+// request, in order, using the single-request handler do.
+func serveBatch[Req, Res any](s *Server, w http.ResponseWriter, r *http.Request, do func(Req) (Res, *apiError)) {
+	var body batchBody[Req]
 	if !s.decodeBody(w, r, &body) {
 		return
 	}
@@ -459,7 +448,7 @@ func (s *Server) postScoreBatch(w http.ResponseWriter, r *http.Request) {
 	}
 	rep := batchReply{Results: make([]batchEntry, len(body.Requests))}
 	for i, b := range body.Requests {
-		res, aerr := s.doScore(b)
+		res, aerr := do(b)
 		if aerr != nil {
 			rep.Results[i].Error = aerr
 			continue

@@ -30,15 +30,16 @@ type preferBody struct {
 	Categories []string `json:"categories"`
 }
 
-// nextBatchBody is the body of POST /v1/next/batch.
-type nextBatchBody struct {
-	Requests []nextBody `json:"requests"`
+// batchBody is the body of POST /v1/next/batch and /v1/score/batch:
+// {"requests":[...]} of the single bodies.
+type batchBody[Req any] struct {
+	Requests []Req `json:"requests"`
 }
 
-// scoreBatchBody is the body of POST /v1/score/batch.
-type scoreBatchBody struct {
-	Requests []scoreBody `json:"requests"`
-}
+type (
+	nextBatchBody  = batchBody[nextBody]
+	scoreBatchBody = batchBody[scoreBody]
+)
 
 // batchEntry is one answer of a batch: the result or an error.
 type batchEntry struct {
