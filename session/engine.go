@@ -174,6 +174,7 @@ func NewEngine(ctx context.Context, st *store.Store, dlq DeadLetterer, opts Engi
 	if err != nil {
 		return nil, err
 	}
+	p.Tracker.Persist()
 	m, _ := p.Set.Get(opts.Blend)
 	blend, ok := m.(*models.Blend)
 	if !ok {

@@ -56,6 +56,9 @@ const numShards = 64
 type Tracker struct {
 	opts     TrackerOptions
 	perShard int
+	// persist turns on the bookkeeping of changed and removed sessions
+	// for Flush; a tracker that is never flushed (replay) keeps none.
+	persist bool
 	shards   [numShards]shard
 }
 
@@ -95,6 +98,10 @@ func NewTracker(opts TrackerOptions) (*Tracker, error) {
 	return t, nil
 }
 
+// Persist makes the tracker keep what Flush needs: the sessions changed and
+// removed since the last flush. Call it before the first Observe.
+func (t *Tracker) Persist() { t.persist = true }
+
 // Options returns the tracker's effective options.
 func (t *Tracker) Options() TrackerOptions { return t.opts }
 
@@ -121,18 +128,20 @@ func (s *shard) pushFrontLocked(e *entry) {
 	s.lru.next = e
 }
 
-func (s *shard) markDirtyLocked(e *entry) {
-	if !e.dirty {
+func (s *shard) markDirtyLocked(e *entry, persist bool) {
+	if persist && !e.dirty {
 		e.dirty = true
 		s.dirty = append(s.dirty, e)
 	}
 }
 
-func (s *shard) removeLocked(e *entry) {
+func (s *shard) removeLocked(e *entry, persist bool) {
 	s.unlinkLocked(e)
 	delete(s.m, e.key)
 	e.dead = true
-	s.deleted = append(s.deleted, e.key)
+	if persist {
+		s.deleted = append(s.deleted, e.key)
+	}
 }
 
 // Click is what Observe reports about one click.
@@ -168,7 +177,7 @@ func (t *Tracker) Observe(key string, item models.ItemID, ts int64, touch uint64
 		s.pushFrontLocked(e)
 		c.New = true
 		for len(s.m) > t.perShard {
-			s.removeLocked(s.lru.prev)
+			s.removeLocked(s.lru.prev, t.persist)
 		}
 	}
 	c.No = e.no
@@ -180,6 +189,12 @@ func (t *Tracker) Observe(key string, item models.ItemID, ts int64, touch uint64
 		if len(e.steps) == t.opts.Window {
 			copy(e.steps, e.steps[1:])
 			e.steps = e.steps[:len(e.steps)-1]
+		} else if len(e.steps) == cap(e.steps) {
+			// Grow to the window at most, not by append's doubling: a
+			// window of 20 would otherwise hold room for 32.
+			grown := make([]models.Step, len(e.steps), min(2*cap(e.steps), t.opts.Window))
+			copy(grown, e.steps)
+			e.steps = grown
 		}
 		e.steps = append(e.steps, models.Step{Item: item, TS: ts})
 	}
@@ -189,7 +204,7 @@ func (t *Tracker) Observe(key string, item models.ItemID, ts int64, touch uint64
 		s.unlinkLocked(e)
 		s.pushFrontLocked(e)
 	}
-	s.markDirtyLocked(e)
+	s.markDirtyLocked(e, t.persist)
 	return c
 }
 
@@ -216,7 +231,7 @@ func (t *Tracker) Delete(key string) bool {
 	if e == nil {
 		return false
 	}
-	s.removeLocked(e)
+	s.removeLocked(e, t.persist)
 	return true
 }
 
@@ -232,7 +247,7 @@ func (t *Tracker) Expire(now int64) int {
 		// stopping at the first live entry keeps the sweep cheap and a
 		// function of the stream alone.
 		for e := s.lru.prev; e != &s.lru && e.last < cutoff; e = s.lru.prev {
-			s.removeLocked(e)
+			s.removeLocked(e, t.persist)
 			n++
 		}
 		s.mu.Unlock()
