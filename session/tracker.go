@@ -59,7 +59,7 @@ type Tracker struct {
 	// persist turns on the bookkeeping of changed and removed sessions
 	// for Flush; a tracker that is never flushed (replay) keeps none.
 	persist bool
-	shards   [numShards]shard
+	shards  [numShards]shard
 }
 
 type shard struct {
