@@ -112,7 +112,7 @@ type adversarialSample struct {
 //     would mean something is kept per event rather than per item.
 //
 // The figures go to the test log (go test -v -run TestAdversarialIDs);
-// bench/RESULTS-faults.md records a run with WAYMARK_LONG=1.
+// bench/RESULTS.md records a run with WAYMARK_LONG=1.
 func TestAdversarialIDs(t *testing.T) {
 	capSessions := max(64, adversarialN(false)/5/64*64) // a multiple of the tracker's 64 shards
 	tests := []struct {

@@ -1,6 +1,6 @@
 // Command coldscenario writes a synthetic cold-start scenario of an invented
 // shop, for the replay comparisons of issue 4 (bench/coldstart,
-// bench/RESULTS-coldstart.md).
+// bench/RESULTS.md).
 //
 // The shop, "Fernhollow Home & Garden", sells 30 kinds of goods (six
 // departments of five categories) in six styles and ten materials. A

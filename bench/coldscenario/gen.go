@@ -36,7 +36,7 @@ type Options struct {
 	BNoise float64
 }
 
-// DefaultOptions returns the scenario of bench/RESULTS-coldstart.md.
+// DefaultOptions returns the scenario of bench/RESULTS.md.
 func DefaultOptions() Options {
 	return Options{
 		Seed:            1,

@@ -1,5 +1,5 @@
 // Command coldstart runs the cold-start comparisons of issue 4 and prints
-// the tables of bench/RESULTS-coldstart.md. It drives the project's own
+// the tables of bench/RESULTS.md. It drives the project's own
 // code: the replay evaluator (models/eval) and the serve engine
 // (session.Engine); it scores nothing with a model of its own.
 //

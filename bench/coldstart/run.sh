@@ -1,5 +1,5 @@
 #!/bin/sh
-# Every command behind bench/RESULTS-coldstart.md, from the project root:
+# Every command behind bench/RESULTS.md, from the project root:
 #
 #   sh bench/coldstart/run.sh [STEP...]      (default: every step, in order)
 #
