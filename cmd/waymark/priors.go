@@ -9,7 +9,6 @@ import (
 	"flag"
 	"fmt"
 	"io"
-	"net/http"
 	"os"
 	"strings"
 	"time"
@@ -54,25 +53,11 @@ func priorsExport(ctx context.Context, args []string, stdout, stderr io.Writer) 
 		}
 		return 2
 	}
-	req, err := http.NewRequestWithContext(ctx, "GET", *addr+"/v1/admin/priors", nil)
-	if err != nil {
-		fmt.Fprintln(stderr, "waymark priors export:", err)
-		return 2
-	}
-	if *token != "" {
-		req.Header.Set("Authorization", "Bearer "+*token)
-	}
-	resp, err := http.DefaultClient.Do(req)
-	if err != nil {
-		fmt.Fprintln(stderr, "waymark priors export:", err)
-		return 1
+	resp, code := adminCall(ctx, "GET", *addr+"/v1/admin/priors", *token, "waymark priors export", stderr)
+	if resp == nil {
+		return code
 	}
 	defer resp.Body.Close()
-	if resp.StatusCode != http.StatusOK {
-		b, _ := io.ReadAll(resp.Body)
-		fmt.Fprintf(stderr, "waymark priors export: %s: %s\n", resp.Status, b)
-		return 1
-	}
 	w := stdout
 	if *out != "" {
 		f, err := os.Create(*out)

@@ -39,25 +39,11 @@ func runSnapshot(ctx context.Context, args []string, stdout, stderr io.Writer) i
 	}
 	ctx, cancel := context.WithTimeout(ctx, 30*time.Minute)
 	defer cancel()
-	req, err := http.NewRequestWithContext(ctx, "POST", *addr+"/v1/admin/snapshot?to="+to, nil)
-	if err != nil {
-		fmt.Fprintln(stderr, "waymark snapshot:", err)
-		return 2
-	}
-	if *token != "" {
-		req.Header.Set("Authorization", "Bearer "+*token)
-	}
-	resp, err := http.DefaultClient.Do(req)
-	if err != nil {
-		fmt.Fprintln(stderr, "waymark snapshot:", err)
-		return 1
+	resp, code := adminCall(ctx, "POST", *addr+"/v1/admin/snapshot?to="+to, *token, "waymark snapshot", stderr)
+	if resp == nil {
+		return code
 	}
 	defer resp.Body.Close()
-	if resp.StatusCode != http.StatusOK {
-		b, _ := io.ReadAll(resp.Body)
-		fmt.Fprintf(stderr, "waymark snapshot: %s: %s\n", resp.Status, b)
-		return 1
-	}
 	if *out == "" {
 		_, _ = io.Copy(stdout, resp.Body)
 		return 0
@@ -77,4 +63,30 @@ func runSnapshot(ctx context.Context, args []string, stdout, stderr io.Writer) i
 	}
 	fmt.Fprintf(stdout, "wrote %s: %d bytes, state after stream sequence %s\n", *out, n, resp.Header.Get("Waymark-Seq"))
 	return 0
+}
+
+// adminCall sends an admin request with the bearer token and returns the
+// response when it is 200; otherwise it reports the failure on stderr and
+// returns nil with the exit code (2: a bad URL, 1: the call failed).
+func adminCall(ctx context.Context, method, url, token, name string, stderr io.Writer) (*http.Response, int) {
+	req, err := http.NewRequestWithContext(ctx, method, url, nil)
+	if err != nil {
+		fmt.Fprintf(stderr, "%s: %v\n", name, err)
+		return nil, 2
+	}
+	if token != "" {
+		req.Header.Set("Authorization", "Bearer "+token)
+	}
+	resp, err := http.DefaultClient.Do(req)
+	if err != nil {
+		fmt.Fprintf(stderr, "%s: %v\n", name, err)
+		return nil, 1
+	}
+	if resp.StatusCode != http.StatusOK {
+		b, _ := io.ReadAll(resp.Body)
+		resp.Body.Close()
+		fmt.Fprintf(stderr, "%s: %s: %s\n", name, resp.Status, b)
+		return nil, 1
+	}
+	return resp, 0
 }
