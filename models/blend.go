@@ -4,6 +4,7 @@ import (
 	"fmt"
 	"slices"
 	"strings"
+	"sync"
 	"sync/atomic"
 	"time"
 )
@@ -76,6 +77,8 @@ type Blend struct {
 	// cost holds each signal's recent query time in nanoseconds (a
 	// moving average), to skip a signal that would overrun a budget.
 	cost []atomic.Int64
+	// scratch recycles *blendScratch across queries.
+	scratch sync.Pool
 }
 
 // DefaultContentBackoff is n0 of the content back-off: the decayed click
@@ -91,24 +94,6 @@ func (b *Blend) setColdStart(cat *Catalog, n0 float64) {
 
 // available reports whether id may be recommended.
 func (b *Blend) available(id ItemID) bool { return b.cat == nil || b.cat.Available(id) }
-
-// contentFactor returns a signal's weight multiplier for candidate id: the
-// back-off for a content signal, 1 otherwise.
-func (b *Blend) contentFactor(s *Signal, q *Query, id ItemID) float64 {
-	if b.backoff <= 0 {
-		return 1
-	}
-	if _, ok := s.Model.(*Content); !ok {
-		return 1
-	}
-	last, ok := q.Last()
-	if !ok {
-		return 1
-	}
-	n := min(b.pop.Count(last), b.pop.Count(id))
-	n = b.cat.decayed(n, q.Now)
-	return b.backoff / (b.backoff + n)
-}
 
 // DefaultPopWeight is popularity's weight in the default blend: enough to
 // order otherwise tied candidates and to fill short lists, too small to
@@ -162,8 +147,15 @@ func (b *Blend) Observe(*Observation) {}
 
 // Candidates adds blended scores of every signal's candidates and the top
 // popular items.
-func (b *Blend) Candidates(q *Query, out Scores) {
-	b.blend(q, popTopN, out, nil, nil, Budget{})
+func (b *Blend) Candidates(q *Query, out *Scores) {
+	sc := b.getScratch()
+	defer b.scratch.Put(sc)
+	b.blend(q, popTopN, sc, nil, Budget{})
+	for _, e := range sc.out.Entries() {
+		if b.available(e.Item) {
+			out.Add(e.Item, e.Score)
+		}
+	}
 }
 
 // ScoreItems writes the blended score of each item.
@@ -174,87 +166,138 @@ func (b *Blend) ScoreItems(q *Query, items []ItemID, out []float64) {
 	}
 }
 
-// blend fills out with blended scores of items for which skip is false;
-// when feats is non-nil it also keeps each candidate's features, indexed
-// like Signals. Popularity fills up to popN items. It reports whether any
-// signal other than popularity had candidates, and the signals the budget
-// skipped.
-func (b *Blend) blend(q *Query, popN int, out Scores, feats map[ItemID][]float64, skip func(ItemID) bool, bu Budget) (collab bool, skipped []string) {
-	nf := len(b.signals) + 1
-	part := make(Scores)
+// blendScratch is one query's working memory, reused across queries so a
+// query allocates nothing for its candidates.
+type blendScratch struct {
+	out   Scores    // blended scores
+	parts []Scores  // each signal's raw scores
+	norm  []float64 // each signal's normaliser; 0: no candidates or skipped
+	popMx float64   // popularity's normaliser; 0: no popular items
+	top   []Scored
+	items []ItemID
+	raw   []float64
+}
+
+func (b *Blend) getScratch() *blendScratch {
+	sc, _ := b.scratch.Get().(*blendScratch)
+	if sc == nil {
+		sc = new(blendScratch)
+	}
+	if len(sc.parts) != len(b.signals) {
+		sc.parts = make([]Scores, len(b.signals))
+		sc.norm = make([]float64, len(b.signals))
+	}
+	sc.out.Reset()
+	return sc
+}
+
+// blend fills sc.out with the blended scores of every signal's candidates
+// and of up to popN popular items for which skip is false, and sc.parts and
+// sc.norm with what features need. Candidates that are unavailable or
+// skipped stay in sc.out (removing them would cost more than ranking past
+// them); callers rank with b.keep. It reports whether any signal other than
+// popularity had candidates, and the signals the budget skipped.
+func (b *Blend) blend(q *Query, popN int, sc *blendScratch, skip func(ItemID) bool, bu Budget) (collab bool, skipped []string) {
 	for si := range b.signals {
 		s := &b.signals[si]
+		part := &sc.parts[si]
+		part.Reset()
+		sc.norm[si] = 0
 		if !bu.allows(time.Duration(b.cost[si].Load())) {
 			skipped = append(skipped, s.Name)
 			continue
 		}
 		start := time.Now()
-		clear(part)
 		s.Model.Candidates(q, part)
 		d := int64(time.Since(start))
 		b.cost[si].Store((b.cost[si].Load()*7 + d) / 8)
-		mx := normaliser(s.Model, maxScore(part))
+		mx := normaliser(s.Model, part.Max())
 		if mx <= 0 {
 			continue
 		}
+		sc.norm[si] = mx
 		collab = true
-		for id, v := range part {
-			f := v / mx
-			out[id] += s.Weight * b.contentFactor(s, q, id) * f
-			if feats != nil {
-				fv := feats[id]
-				if fv == nil {
-					fv = make([]float64, nf)
-					feats[id] = fv
-				}
-				fv[si] = f
+		// The arithmetic is Score's, term for term, so the two agree.
+		if cf, ok := b.contentBackoff(s, q); ok {
+			for _, e := range part.Entries() {
+				sc.out.Add(e.Item, s.Weight*cf(e.Item)*(e.Score/mx))
 			}
+			continue
+		}
+		for _, e := range part.Entries() {
+			sc.out.Add(e.Item, s.Weight*(e.Score/mx))
 		}
 	}
-	// Unavailable and skipped items leave before popularity fills, so the
-	// fill counts only items that can be shown.
-	for id := range out {
-		if !b.available(id) || (skip != nil && skip(id)) {
-			delete(out, id)
-			delete(feats, id)
-		}
-	}
+	sc.popMx = 0
 	all := b.pop.Top(popTopN)
 	if len(all) == 0 {
 		return collab, skipped
 	}
 	mx := b.pop.Count(all[0])
-	addPop := func(id ItemID) {
-		f := b.pop.Count(id) / mx
-		out[id] += b.popW * f
-		if feats != nil {
-			fv := feats[id]
-			if fv == nil {
-				fv = make([]float64, nf)
-				feats[id] = fv
-			}
-			fv[nf-1] = f
-		}
-	}
+	sc.popMx = mx
 	// Popularity as a feature of every candidate the others found...
-	for id := range out {
-		addPop(id)
+	ents := sc.out.Entries()
+	for i := range ents {
+		ents[i].Score += b.popW * (b.pop.Count(ents[i].Item) / mx)
 	}
-	// ...and as a source of candidates to fill the list.
+	// ...and as a source of candidates to fill the list, counting only
+	// items that can be shown.
 	filled := 0
 	for _, id := range all {
 		if filled == popN {
 			break
 		}
-		if !b.available(id) || (skip != nil && skip(id)) {
+		if !b.keep(id, skip) {
 			continue
 		}
 		filled++
-		if _, ok := out[id]; !ok {
-			addPop(id)
+		if _, ok := sc.out.Lookup(id); !ok {
+			sc.out.Set(id, b.popW*(b.pop.Count(id)/mx))
 		}
 	}
 	return collab, skipped
+}
+
+// keep reports whether id may be in an answer.
+func (b *Blend) keep(id ItemID, skip func(ItemID) bool) bool {
+	return b.available(id) && (skip == nil || !skip(id))
+}
+
+// contentBackoff returns the content back-off factor of candidates for a
+// content signal (see the type doc), or false for any other signal or when
+// there is no back-off.
+func (b *Blend) contentBackoff(s *Signal, q *Query) (func(ItemID) float64, bool) {
+	if b.backoff <= 0 {
+		return nil, false
+	}
+	if _, ok := s.Model.(*Content); !ok {
+		return nil, false
+	}
+	last, ok := q.Last()
+	if !ok {
+		return nil, false
+	}
+	nLast := b.pop.Count(last)
+	return func(id ItemID) float64 {
+		n := b.cat.decayed(min(nLast, b.pop.Count(id)), q.Now)
+		return b.backoff / (b.backoff + n)
+	}, true
+}
+
+// features returns id's features from a query's scratch, indexed like
+// Signals.
+func (b *Blend) features(sc *blendScratch, id ItemID) []float64 {
+	nf := len(b.signals) + 1
+	fv := make([]float64, nf)
+	for si := range b.signals {
+		if mx := sc.norm[si]; mx > 0 {
+			fv[si] = sc.parts[si].Get(id) / mx
+		}
+	}
+	if sc.popMx > 0 {
+		fv[nf-1] = b.pop.Count(id) / sc.popMx
+	}
+	return fv
 }
 
 // absolute is a model whose scores are already on the blend's [0, 1]
@@ -274,16 +317,6 @@ func normaliser(m Model, best float64) float64 {
 	return best
 }
 
-func maxScore(s Scores) float64 {
-	mx := 0.0
-	for _, v := range s {
-		if v > mx {
-			mx = v
-		}
-	}
-	return mx
-}
-
 // Result is a ranked answer with per-signal features.
 type Result struct {
 	Items    []Scored
@@ -297,20 +330,21 @@ type Result struct {
 // Recommend ranks the k best items for q, skipping items for which skip is
 // true.
 func (b *Blend) Recommend(q *Query, k int, skip func(ItemID) bool, dst []Scored) []Scored {
-	out := make(Scores)
-	b.blend(q, k, out, nil, skip, Budget{})
-	return TopK(dst, out, k, nil)
+	sc := b.getScratch()
+	defer b.scratch.Put(sc)
+	b.blend(q, k, sc, skip, Budget{})
+	return TopK(dst, &sc.out, k, func(id ItemID) bool { return !b.keep(id, skip) })
 }
 
 // Explain is Recommend with each item's features, within a time budget.
 func (b *Blend) Explain(q *Query, k int, skip func(ItemID) bool, bu Budget) Result {
-	out := make(Scores)
-	feats := make(map[ItemID][]float64)
-	collab, skipped := b.blend(q, k, out, feats, skip, bu)
-	items := TopK(nil, out, k, nil)
+	sc := b.getScratch()
+	defer b.scratch.Put(sc)
+	collab, skipped := b.blend(q, k, sc, skip, bu)
+	items := TopK(nil, &sc.out, k, func(id ItemID) bool { return !b.keep(id, skip) })
 	res := Result{Items: items, Fallback: !collab, Skipped: skipped, Features: make([][]float64, len(items))}
 	for i, it := range items {
-		res.Features[i] = feats[it.Item]
+		res.Features[i] = b.features(sc, it.Item)
 	}
 	return res
 }
@@ -327,27 +361,39 @@ type ScoreRow struct {
 func (b *Blend) Score(q *Query, items []ItemID) []ScoreRow {
 	nf := len(b.signals) + 1
 	rows := make([]ScoreRow, len(items))
-	raw := make([]float64, len(items))
-	part := make(Scores)
+	feats := make([]float64, nf*len(items))
 	for i := range rows {
-		rows[i].Features = make([]float64, nf)
+		rows[i].Features = feats[i*nf : (i+1)*nf : (i+1)*nf]
 	}
+	sc := b.getScratch()
+	defer b.scratch.Put(sc)
+	sc.raw = slices.Grow(sc.raw[:0], len(items))[:len(items)]
+	raw := sc.raw
 	for si := range b.signals {
 		s := &b.signals[si]
-		clear(part)
+		part := &sc.parts[si]
+		part.Reset()
 		s.Model.Candidates(q, part)
-		mx := maxScore(part)
 		s.Model.ScoreItems(q, items, raw)
 		// A signal may score items it would not propose; keep features
 		// within [0, 1] all the same.
-		mx = normaliser(s.Model, max(mx, slices.Max(append(raw[:len(raw):len(raw)], 0))))
+		mx := part.Max()
+		for _, v := range raw {
+			mx = max(mx, v)
+		}
+		mx = normaliser(s.Model, mx)
 		if mx <= 0 {
 			continue
 		}
+		cf, content := b.contentBackoff(s, q)
 		for i, v := range raw {
 			f := v / mx
 			rows[i].Features[si] = f
-			rows[i].Score += s.Weight * b.contentFactor(s, q, items[i]) * f
+			if content {
+				rows[i].Score += s.Weight * cf(items[i]) * f
+			} else {
+				rows[i].Score += s.Weight * f
+			}
 		}
 	}
 	if top := b.pop.Top(1); len(top) == 1 {

@@ -33,13 +33,17 @@ func TestBlendContentBackoff(t *testing.T) {
 	}
 	q := csQuery(now, 0, t2)
 	content := &b.signals[slicesIndexSignal(b, "content")]
+	cf, ok := b.contentBackoff(content, q)
+	if !ok {
+		t.Fatal("no content back-off for a session with a last item")
+	}
 	for _, c := range []ItemID{names["T0"], names["T4"], t9} {
 		want := 10 / (10 + math.Min(decayed(t2), decayed(c)))
-		if got := b.contentFactor(content, q, c); math.Abs(got-want) > 1e-9 {
+		if got := cf(c); math.Abs(got-want) > 1e-9 {
 			t.Errorf("factor for T2→%d = %.12f, want %.12f", c, got, want)
 		}
 	}
-	if got := b.contentFactor(content, q, t9); got != 1 {
+	if got := cf(t9); got != 1 {
 		t.Errorf("an unclicked candidate gets factor %g, want 1", got)
 	}
 	// The blended score is the weighted sum of the reported features.
@@ -53,7 +57,7 @@ func TestBlendContentBackoff(t *testing.T) {
 			case "pop":
 				w = DefaultPopWeight
 			case "content":
-				w = b.contentFactor(content, q, it.Item)
+				w = cf(it.Item)
 			}
 			want += w * f
 		}
@@ -70,7 +74,8 @@ func TestBlendContentBackoff(t *testing.T) {
 	}
 	q.Now = ts
 	want := 10 / (10 + decayedAt(evs, t9, ts) + sumLate(10, now, ts))
-	if got := b.contentFactor(content, q, t9); math.Abs(got-want) > 1e-9 || math.Abs(got-0.5) > 1e-3 {
+	cf, _ = b.contentBackoff(content, q)
+	if got := cf(t9); math.Abs(got-want) > 1e-9 || math.Abs(got-0.5) > 1e-3 {
 		t.Errorf("after 10 clicks the factor is %g, want %g (about 0.5)", got, want)
 	}
 }

@@ -43,7 +43,7 @@ func (c *Catalog) Name() string { return catalogKey }
 func (c *Catalog) Observe(*Observation) {}
 
 // Candidates adds nothing: the catalog filters, it does not propose.
-func (c *Catalog) Candidates(*Query, Scores) {}
+func (c *Catalog) Candidates(*Query, *Scores) {}
 
 // ScoreItems writes zeros.
 func (c *Catalog) ScoreItems(_ *Query, _ []ItemID, out []float64) { clear(out) }

@@ -495,7 +495,7 @@ func (c *Content) voters(q *Query, f func(a ItemID, pw float64)) {
 // Candidates adds the content neighbours of the session's last items,
 // each weighted by its voter's position weight. The last item itself and
 // unavailable items are left out.
-func (c *Content) Candidates(q *Query, out Scores) {
+func (c *Content) Candidates(q *Query, out *Scores) {
 	last, ok := q.Last()
 	if !ok {
 		return
@@ -507,7 +507,7 @@ func (c *Content) Candidates(q *Query, out Scores) {
 			if b == last || (c.cat != nil && !c.cat.Available(b)) {
 				return
 			}
-			out[b] += pw * s
+			out.Add(b, pw*s)
 		})
 	})
 }

@@ -60,14 +60,14 @@ func TestMarkovAndSRWorked(t *testing.T) {
 	}
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {
-			got := Scores{}
+			got := new(Scores)
 			tt.m.Candidates(query(tt.last), got)
-			if len(got) != len(tt.want) {
-				t.Fatalf("got %v, want %v", got, tt.want)
+			if got.Len() != len(tt.want) {
+				t.Fatalf("got %v, want %v", got.Entries(), tt.want)
 			}
 			for k, v := range tt.want {
-				if math.Abs(got[k]-v) > 1e-12 {
-					t.Errorf("score of %d = %g, want %g", k, got[k], v)
+				if math.Abs(got.Get(k)-v) > 1e-12 {
+					t.Errorf("score of %d = %g, want %g", k, got.Get(k), v)
 				}
 			}
 		})

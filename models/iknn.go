@@ -112,9 +112,9 @@ func (m *IKNN) voters(q *Query, f func(a ItemID, pw float64)) {
 	}
 }
 
-func (m *IKNN) Candidates(q *Query, out Scores) {
+func (m *IKNN) Candidates(q *Query, out *Scores) {
 	m.voters(q, func(a ItemID, pw float64) {
-		m.covis.each(a, func(b ItemID, w float64) { out[b] += pw * m.sim(a, b, w, q.Now) })
+		m.covis.each(a, func(b ItemID, w float64) { out.Add(b, pw*m.sim(a, b, w, q.Now)) })
 	})
 }
 

@@ -22,12 +22,12 @@ func (m *Markov) Observe(o *Observation) {
 	m.trans.add(o.Window[len(o.Window)-1].Item, o.Item, o.Weight)
 }
 
-func (m *Markov) Candidates(q *Query, out Scores) {
+func (m *Markov) Candidates(q *Query, out *Scores) {
 	last, ok := q.Last()
 	if !ok {
 		return
 	}
-	m.trans.each(last, func(b ItemID, w float64) { out[b] += w })
+	m.trans.each(last, func(b ItemID, w float64) { out.Add(b, w) })
 }
 
 func (m *Markov) ScoreItems(q *Query, items []ItemID, out []float64) {

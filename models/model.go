@@ -62,15 +62,12 @@ type Model interface {
 	Observe(o *Observation)
 	// Candidates adds the model's candidates for q and their raw scores
 	// to out. Raw scores are comparable within one call only.
-	Candidates(q *Query, out Scores)
+	Candidates(q *Query, out *Scores)
 	// ScoreItems writes the model's raw score of each item in items
 	// into out (0 when it has none), for callers that bring their own
 	// candidates.
 	ScoreItems(q *Query, items []ItemID, out []float64)
 }
-
-// Scores maps candidate items to scores.
-type Scores map[ItemID]float64
 
 // KV receives the writes of a flush. In serve it is one Badger transaction.
 type KV interface {

@@ -29,9 +29,9 @@ func (p *Pop) Observe(o *Observation) {
 }
 
 // Candidates adds the most popular items, whatever the session.
-func (p *Pop) Candidates(q *Query, out Scores) {
+func (p *Pop) Candidates(q *Query, out *Scores) {
 	for _, id := range p.top.items {
-		out[id] += p.counts.get(id)
+		out.Add(id, p.counts.get(id))
 	}
 }
 

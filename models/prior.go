@@ -3,6 +3,7 @@ package models
 import (
 	"fmt"
 	"math"
+	"slices"
 )
 
 // Prior holds item-to-item statistics imported from another deployment (a
@@ -62,13 +63,13 @@ func (p *Prior) fade(a ItemID, now int64) float64 {
 	return p.n0 / (p.n0 + n)
 }
 
-func (p *Prior) Candidates(q *Query, out Scores) {
+func (p *Prior) Candidates(q *Query, out *Scores) {
 	last, ok := q.Last()
 	if !ok {
 		return
 	}
 	f := p.fade(last, q.Now)
-	p.rows.each(last, func(b ItemID, w float64) { out[b] += w * f })
+	p.rows.each(last, func(b ItemID, w float64) { out.Add(b, w*f) })
 }
 
 func (p *Prior) ScoreItems(q *Query, items []ItemID, out []float64) {
@@ -134,20 +135,12 @@ func exportTable(t *pairTable, score func(a, b ItemID, w float64) float64, f fun
 		for i := range ns {
 			ns[i].Score /= best
 		}
-		ns = TopK(nil, scoresOf(ns), len(ns), nil)
+		slices.SortFunc(ns, func(x, y Scored) int { return cmpScore(x.Score, y.Score, x.Item, y.Item) })
 		if err := f(ItemID(a), ns); err != nil {
 			return err
 		}
 	}
 	return nil
-}
-
-func scoresOf(ns []Scored) Scores {
-	s := make(Scores, len(ns))
-	for _, n := range ns {
-		s[n.Item] = n.Score
-	}
-	return s
 }
 
 // Export writes each item's co-visitation neighbours by cosine.

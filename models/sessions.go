@@ -131,7 +131,7 @@ func (x *SessionIndex) Options() SessionIndexOptions { return x.opts }
 func (x *SessionIndex) Len() int { return x.live }
 
 // Candidates adds nothing: the index serves the session-kNN models.
-func (x *SessionIndex) Candidates(*Query, Scores) {}
+func (x *SessionIndex) Candidates(*Query, *Scores) {}
 
 // ScoreItems writes zeros.
 func (x *SessionIndex) ScoreItems(_ *Query, _ []ItemID, out []float64) { clear(out) }

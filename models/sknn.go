@@ -195,10 +195,10 @@ func (a *knnCand) better(b *knnCand) bool {
 }
 
 // Candidates adds the neighbours' votes.
-func (m *SessionKNN) Candidates(q *Query, out Scores) {
+func (m *SessionKNN) Candidates(q *Query, out *Scores) {
 	sc := m.scratch.Get().(*knnScratch)
 	defer m.scratch.Put(sc)
-	m.vote(q, sc, func(j ItemID, v float64) { out[j] += v })
+	m.vote(q, sc, func(j ItemID, v float64) { out.Add(j, v) })
 }
 
 // ScoreItems writes each item's vote.
@@ -206,13 +206,10 @@ func (m *SessionKNN) ScoreItems(q *Query, items []ItemID, out []float64) {
 	clear(out)
 	sc := m.scratch.Get().(*knnScratch)
 	defer m.scratch.Put(sc)
-	if sc.votes == nil {
-		sc.votes = make(Scores)
-	}
-	clear(sc.votes)
-	m.vote(q, sc, func(j ItemID, v float64) { sc.votes[j] += v })
+	sc.votes.Reset()
+	m.vote(q, sc, func(j ItemID, v float64) { sc.votes.Add(j, v) })
 	for i, id := range items {
-		out[i] = sc.votes[id]
+		out[i] = sc.votes.Get(id)
 	}
 }
 

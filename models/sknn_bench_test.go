@@ -70,11 +70,11 @@ func BenchmarkSessionKNNQuery(b *testing.B) {
 				b.Fatal(err)
 			}
 			b.Run(fmt.Sprintf("%s/sessions=%d", v, n), func(b *testing.B) {
-				out := make(Scores, 4096)
+				out := NewScores(4096)
 				b.ReportAllocs()
 				i := 0
 				for b.Loop() {
-					clear(out)
+					out.Reset()
 					m.Candidates(qs[i%len(qs)], out)
 					i++
 				}
@@ -125,11 +125,11 @@ func BenchmarkContentQuery(b *testing.B) {
 			c.ObserveItem(&ItemInfo{Item: ItemID(id), Attrs: attrs, Available: true})
 		}
 		b.Run(fmt.Sprintf("items=%d", n), func(b *testing.B) {
-			out := make(Scores, 4096)
+			out := NewScores(4096)
 			b.ReportAllocs()
 			i := 0
 			for b.Loop() {
-				clear(out)
+				out.Reset()
 				c.Candidates(&Query{Session: []Step{{Item: ItemID(i * 7919 % n)}}}, out)
 				i++
 			}

@@ -125,14 +125,14 @@ func TestSessionKNNWorked(t *testing.T) {
 					t.Errorf("neighbour %d = %+v, want %+v", i, got[i], tt.sims[i])
 				}
 			}
-			out := make(Scores)
+			out := new(Scores)
 			m.Candidates(q, out)
-			if len(out) != len(tt.votes) {
-				t.Errorf("candidates %v, want %v", out, tt.votes)
+			if out.Len() != len(tt.votes) {
+				t.Errorf("candidates %v, want %v", out.Entries(), tt.votes)
 			}
 			for it, want := range tt.votes {
-				if math.Abs(out[it]-want) > 1e-12 {
-					t.Errorf("score of item %d = %.15g, want %.15g", it, out[it], want)
+				if math.Abs(out.Get(it)-want) > 1e-12 {
+					t.Errorf("score of item %d = %.15g, want %.15g", it, out.Get(it), want)
 				}
 			}
 			items := []ItemID{a, b, c, d, e, 5}

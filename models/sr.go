@@ -36,12 +36,12 @@ func (m *SR) Observe(o *Observation) {
 	}
 }
 
-func (m *SR) Candidates(q *Query, out Scores) {
+func (m *SR) Candidates(q *Query, out *Scores) {
 	last, ok := q.Last()
 	if !ok {
 		return
 	}
-	m.rules.each(last, func(b ItemID, w float64) { out[b] += w })
+	m.rules.each(last, func(b ItemID, w float64) { out.Add(b, w) })
 }
 
 func (m *SR) ScoreItems(q *Query, items []ItemID, out []float64) {

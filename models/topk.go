@@ -34,18 +34,23 @@ func better(x, y Scored) bool { return cmpScore(x.Score, y.Score, x.Item, y.Item
 // may be nil), best first, ties by lower id. It appends to dst. Selection
 // keeps a heap of the k best seen, so a query with many candidates costs
 // n log k rather than a full sort.
-func TopK(dst []Scored, s Scores, k int, skip func(ItemID) bool) []Scored {
+func TopK(dst []Scored, s *Scores, k int, skip func(ItemID) bool) []Scored {
+	return topOf(dst, s.Entries(), k, skip)
+}
+
+// topOf is TopK over a slice of candidates, each item at most once.
+func topOf(dst []Scored, cands []Scored, k int, skip func(ItemID) bool) []Scored {
 	if k <= 0 {
 		return dst
 	}
 	start := len(dst)
 	// h is a min-heap by rank: h[0] is the worst of the best k so far.
 	h := dst
-	for id, v := range s {
-		if v <= 0 {
+	for _, c := range cands {
+		if c.Score <= 0 {
 			continue
 		}
-		c := Scored{id, v}
+		id := c.Item
 		n := len(h) - start
 		full := n == k
 		// Ask skip only of a candidate that would enter: most do not.
@@ -94,21 +99,21 @@ func topSiftDown(h []Scored, i int) {
 	}
 }
 
-// scoresPool recycles candidate maps across queries; a query's map is
-// cleared before reuse, so no state crosses queries.
+// scoresPool recycles candidate tables across queries; a query's table is
+// reset before reuse, so no state crosses queries.
 type scoresPool struct{ p sync.Pool }
 
-func (sp *scoresPool) get() Scores {
-	if s, ok := sp.p.Get().(Scores); ok {
+func (sp *scoresPool) get() *Scores {
+	if s, ok := sp.p.Get().(*Scores); ok {
 		return s
 	}
-	return make(Scores, 64)
+	return NewScores(0)
 }
 
-func (sp *scoresPool) put(s Scores) {
-	if len(s) > 1<<16 {
-		return // a rare huge map is not worth keeping
+func (sp *scoresPool) put(s *Scores) {
+	if s.Len() > 1<<16 {
+		return // a rare huge table is not worth keeping
 	}
-	clear(s)
+	s.Reset()
 	sp.p.Put(s)
 }

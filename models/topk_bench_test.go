@@ -7,10 +7,11 @@ import (
 
 // The query hot path of every model: gather raw scores of a few hundred
 // candidates, then rank the best k. These benchmarks set the current way
-// (a Scores map, fresh or pooled, then TopK's heap over the map) beside the
-// bare alternative (a dense score array with a touched list, then the same
-// kind of heap over a plain slice), for a row of 400 neighbours (a full
-// neighbour list: twice the default cap of 200 before pruning) and k = 20.
+// (a Scores table, then TopK's heap over its entries) beside a Go map, fresh
+// or pooled (the way before), and the bare alternative (a dense score array
+// indexed by item id with a touched list, then the same kind of heap over a
+// plain slice), for a row of 400 neighbours (a full neighbour list: twice
+// the default cap of 200 before pruning) and k = 20.
 // Run with
 //
 //	go test -run '^$' -bench 'BenchmarkGather|BenchmarkRank' -benchmem ./models
@@ -26,18 +27,28 @@ func benchRow(n int) []Scored {
 
 func BenchmarkGather(b *testing.B) {
 	row := benchRow(400)
-	b.Run("scores-map", func(b *testing.B) {
+	b.Run("scores", func(b *testing.B) {
+		b.ReportAllocs()
+		out := NewScores(0)
+		for b.Loop() {
+			out.Reset()
+			for _, e := range row {
+				out.Add(e.Item, e.Score)
+			}
+		}
+	})
+	b.Run("go-map", func(b *testing.B) {
 		b.ReportAllocs()
 		for b.Loop() {
-			out := make(Scores)
+			out := make(map[ItemID]float64)
 			for _, e := range row {
 				out[e.Item] += e.Score
 			}
 		}
 	})
-	b.Run("scores-map-pooled", func(b *testing.B) {
+	b.Run("go-map-pooled", func(b *testing.B) {
 		b.ReportAllocs()
-		out := make(Scores, 512)
+		out := make(map[ItemID]float64, 512)
 		for b.Loop() {
 			clear(out)
 			for _, e := range row {
@@ -103,11 +114,13 @@ func pushTop(h []Scored, k int, c Scored) []Scored {
 
 func BenchmarkRank(b *testing.B) {
 	row := benchRow(400)
-	s := make(Scores, len(row))
+	s := NewScores(len(row))
+	m := make(map[ItemID]float64, len(row))
 	for _, e := range row {
-		s[e.Item] += e.Score
+		s.Add(e.Item, e.Score)
+		m[e.Item] += e.Score
 	}
-	b.Run("topk-over-map", func(b *testing.B) {
+	b.Run("topk-over-scores", func(b *testing.B) {
 		b.ReportAllocs()
 		dst := make([]Scored, 0, 512)
 		for b.Loop() {
@@ -119,7 +132,7 @@ func BenchmarkRank(b *testing.B) {
 		h := make([]Scored, 0, 20)
 		for b.Loop() {
 			h = h[:0]
-			for id, v := range s {
+			for id, v := range m {
 				h = pushTop(h, 20, Scored{id, v})
 			}
 		}

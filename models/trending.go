@@ -277,7 +277,7 @@ func (t *Trending) rates(c *trendCtx, item ItemID, now int64) (float64, float64)
 // trendScores adds context c's trend scores at now into out, normalised by
 // the context's best, times scale. With no item above its baseline it ranks
 // by the recent rate instead.
-func (t *Trending) trendScores(c *trendCtx, now int64, skip func(ItemID) bool, scale float64, out Scores) {
+func (t *Trending) trendScores(c *trendCtx, now int64, skip func(ItemID) bool, scale float64, out *Scores) {
 	type row struct {
 		id       ItemID
 		trend, s float64
@@ -295,16 +295,16 @@ func (t *Trending) trendScores(c *trendCtx, now int64, skip func(ItemID) bool, s
 	for _, r := range rows {
 		switch {
 		case best > 0 && r.trend > 0:
-			out[r.id] += scale * r.trend / best
+			out.Add(r.id, scale*r.trend/best)
 		case best <= 0 && bestS > 0:
-			out[r.id] += scale * r.s / bestS
+			out.Add(r.id, scale*r.s/bestS)
 		}
 	}
 }
 
 // popScores adds context c's baseline popularity, normalised by its best,
 // times scale.
-func (t *Trending) popScores(c *trendCtx, skip func(ItemID) bool, scale float64, out Scores) {
+func (t *Trending) popScores(c *trendCtx, skip func(ItemID) bool, scale float64, out *Scores) {
 	best := 0.0
 	for _, id := range c.topL.items {
 		if t.ok(id, skip) {
@@ -317,7 +317,7 @@ func (t *Trending) popScores(c *trendCtx, skip func(ItemID) bool, scale float64,
 	}
 	for _, id := range c.topL.items {
 		if t.ok(id, skip) {
-			out[id] += scale * c.counts[id][1] / best
+			out.Add(id, scale*c.counts[id][1]/best)
 		}
 	}
 }
@@ -331,8 +331,8 @@ const fallbackScale = 1e-6
 
 // fallbackScaleFor scales the global fill: below the contexts' answers when
 // there are any, as is when the global answer is the whole answer.
-func fallbackScaleFor(out Scores) float64 {
-	if len(out) == 0 {
+func fallbackScaleFor(out *Scores) float64 {
+	if out.Len() == 0 {
 		return 1
 	}
 	return fallbackScale
@@ -344,15 +344,15 @@ func fallbackScaleFor(out Scores) float64 {
 // are ignored, and when the contexts give fewer than n items global
 // popularity fills the rest, ranked after them. No keys means global.
 func (t *Trending) Popular(keys []string, n int, now int64, skip func(ItemID) bool) []Scored {
-	out := make(Scores)
+	out := new(Scores)
 	for _, k := range keys {
 		if id, ok := t.byKey[k]; ok && k != "" {
 			t.popScores(t.ctxs[id], skip, 1, out)
 		}
 	}
-	if len(out) < n {
+	if out.Len() < n {
 		scale := fallbackScaleFor(out)
-		t.fill(out, func(s Scores) { t.popScores(t.ctxs[0], skip, scale, s) })
+		t.fill(out, func(s *Scores) { t.popScores(t.ctxs[0], skip, scale, s) })
 	}
 	return TopK(nil, out, n, nil)
 }
@@ -364,7 +364,7 @@ func (t *Trending) TopIn(key string, n int, skip func(ItemID) bool) []Scored {
 	if !ok {
 		return nil
 	}
-	out := make(Scores)
+	out := new(Scores)
 	t.popScores(t.ctxs[id], skip, 1, out)
 	return TopK(nil, out, n, nil)
 }
@@ -373,43 +373,43 @@ func (t *Trending) TopIn(key string, n int, skip func(ItemID) bool) []Scored {
 // scored like Popular but by trend (see the type doc), with global trending
 // filling what the contexts leave.
 func (t *Trending) Trend(keys []string, n int, now int64, skip func(ItemID) bool) []Scored {
-	out := make(Scores)
+	out := new(Scores)
 	for _, k := range keys {
 		if id, ok := t.byKey[k]; ok && k != "" {
 			t.trendScores(t.ctxs[id], now, skip, 1, out)
 		}
 	}
-	if len(out) < n {
+	if out.Len() < n {
 		scale := fallbackScaleFor(out)
-		t.fill(out, func(s Scores) { t.trendScores(t.ctxs[0], now, skip, scale, s) })
+		t.fill(out, func(s *Scores) { t.trendScores(t.ctxs[0], now, skip, scale, s) })
 	}
 	return TopK(nil, out, n, nil)
 }
 
 // fill adds the fallback's items that out does not have yet.
-func (t *Trending) fill(out Scores, fallback func(Scores)) {
-	g := make(Scores)
+func (t *Trending) fill(out *Scores, fallback func(*Scores)) {
+	g := new(Scores)
 	fallback(g)
-	for id, v := range g {
-		if _, ok := out[id]; !ok {
-			out[id] = v
+	for _, e := range g.Entries() {
+		if _, ok := out.Lookup(e.Item); !ok {
+			out.Set(e.Item, e.Score)
 		}
 	}
 }
 
 // Candidates adds the globally trending items: an empty session's answer
 // that follows the day rather than the week.
-func (t *Trending) Candidates(q *Query, out Scores) {
+func (t *Trending) Candidates(q *Query, out *Scores) {
 	t.trendScores(t.ctxs[0], q.Now, nil, 1, out)
 }
 
 // ScoreItems writes each item's global trend score, as Candidates would.
 func (t *Trending) ScoreItems(q *Query, items []ItemID, out []float64) {
 	clear(out)
-	s := make(Scores)
+	s := new(Scores)
 	t.Candidates(q, s)
 	for i, id := range items {
-		out[i] = s[id]
+		out[i] = s.Get(id)
 	}
 }
 
