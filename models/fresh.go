@@ -99,9 +99,12 @@ type Fresh struct {
 	imps   []uint32
 	succ   []uint32
 	inPool []bool
-	flag   []bool
-	dirty  []ItemID
-	pool   []ItemID // ascending id
+	// ub is each item's upper confidence bound (see Pick), kept current
+	// as impressions and clicks change so a request reads it.
+	ub    []float64
+	flag  []bool
+	dirty []ItemID
+	pool  []ItemID // ascending id
 
 	served     map[uint64][]ItemID // session → served items not yet clicked
 	servedFIFO []uint64
@@ -159,10 +162,14 @@ func (f *Fresh) grow(id ItemID) {
 	f.imps = append(f.imps, make([]uint32, n-len(f.imps))...)
 	f.succ = append(f.succ, make([]uint32, n-len(f.succ))...)
 	f.inPool = append(f.inPool, make([]bool, n-len(f.inPool))...)
+	for len(f.ub) < n {
+		f.ub = append(f.ub, f.upperBound(0, 0))
+	}
 	f.flag = append(f.flag, make([]bool, n-len(f.flag))...)
 }
 
 func (f *Fresh) markDirty(id ItemID) {
+	f.ub[id] = f.upperBound(f.imps[id], f.succ[id])
 	if !f.flag[id] {
 		f.flag[id] = true
 		f.dirty = append(f.dirty, id)
@@ -358,10 +365,7 @@ func (f *Fresh) Pick(q *Query, n int, rng *rand.Rand, skip func(ItemID) bool, ds
 	if n <= 0 {
 		return dst
 	}
-	items := f.eligible(q, skip, nil)
-	if m := shortlistSize(n); len(items) > m {
-		items = f.shortlist(items, m)
-	}
+	items := f.shortlist(q, shortlistSize(n), skip)
 	aff := f.affinity(q, items)
 	draws := make([]Scored, len(items))
 	for i, id := range items { // ascending id: the draws are reproducible
@@ -376,25 +380,34 @@ func (f *Fresh) Pick(q *Query, n int, rng *rand.Rand, skip func(ItemID) bool, ds
 // shortlistSize is how many fresh items draw when n are wanted.
 func shortlistSize(n int) int { return max(64, 16*n) }
 
-// shortlist returns the m items with the highest upper confidence bounds,
-// in ascending id order. The content preference is left out of the bound:
+// shortlist returns the eligible items (see eligible) with the m highest
+// upper confidence bounds, in ascending id order; all of them when there
+// are no more than m. Eligibility is asked only of items whose bound would
+// enter the m best. The content preference is left out of the bound:
 // computing it for the whole pool is the cost the shortlist avoids.
-func (f *Fresh) shortlist(items []ItemID, m int) []ItemID {
-	ub := make([]Scored, len(items))
-	for i, id := range items {
-		a := f.opts.PriorA + float64(f.succ[id])
-		b := f.opts.PriorB + float64(f.imps[id]-f.succ[id])
-		mean := a / (a + b)
-		sd := math.Sqrt(a * b / ((a + b) * (a + b) * (a + b + 1)))
-		ub[i] = Scored{id, mean + 3*sd}
+func (f *Fresh) shortlist(q *Query, m int, skip func(ItemID) bool) []ItemID {
+	ub := make([]Scored, len(f.pool))
+	for i, id := range f.pool {
+		ub[i] = Scored{id, f.ub[id]}
 	}
-	top := topOf(make([]Scored, 0, m), ub, m, nil)
-	out := items[:0]
-	for _, t := range top {
-		out = append(out, t.Item)
+	last, hasLast := q.Last()
+	top := topOf(make([]Scored, 0, m), ub, m, func(id ItemID) bool {
+		return (hasLast && id == last) || !f.IsFresh(id, q.Now) || (skip != nil && skip(id))
+	})
+	out := make([]ItemID, len(top))
+	for i, t := range top {
+		out[i] = t.Item
 	}
 	slices.Sort(out)
 	return out
+}
+
+// upperBound is the posterior mean plus three standard deviations of an
+// item's Beta posterior after imps impressions and succ clicks.
+func (f *Fresh) upperBound(imps, succ uint32) float64 {
+	a := f.opts.PriorA + float64(succ)
+	b := f.opts.PriorB + float64(imps-succ)
+	return a/(a+b) + 3*math.Sqrt(a*b/((a+b)*(a+b)*(a+b+1)))
 }
 
 // Candidates adds every fresh item with its posterior mean click rate times
@@ -456,6 +469,7 @@ func (f *Fresh) Load(key, val []byte) error {
 	f.born[id] = int64(binary.BigEndian.Uint64(val))
 	f.imps[id] = binary.BigEndian.Uint32(val[8:])
 	f.succ[id] = binary.BigEndian.Uint32(val[12:])
+	f.ub[id] = f.upperBound(f.imps[id], f.succ[id])
 	if val[16] == 1 && !f.inPool[id] {
 		f.inPool[id] = true
 		i, _ := slices.BinarySearch(f.pool, id)

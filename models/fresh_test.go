@@ -196,3 +196,70 @@ func TestFreshPrefersContentSimilar(t *testing.T) {
 	}
 	t.Logf("new tent won %d slots, new stove %d", wins[tent], wins[stove])
 }
+
+// Shortlist: with more eligible items than shortlistSize, only those with
+// the highest upper confidence bounds draw, ineligible ones never do, and
+// the draws among the shortlist still follow Thompson sampling. The bound
+// is the Beta posterior's mean plus three standard deviations (the Beta
+// variance ab/((a+b)²(a+b+1)), common practice).
+func TestFreshShortlist(t *testing.T) {
+	t0 := int64(1_767_225_600_000)
+	f := newTestFresh(t, DefaultFreshOptions(), NewCatalog(), nil)
+	const n = 300
+	for id := range ItemID(n) {
+		f.ObserveItem(&ItemInfo{Item: id, Available: true, Published: t0, TS: t0})
+	}
+	// Items 0..9 unshown (bound 0.5 + 3·0.2887 = 1.366), item 150 shown
+	// 100 times with 60 clicks (bound about 0.74), the rest shown 100 times
+	// with 2 clicks (about 0.07). Item 5 is skipped by the caller.
+	const good, skipped = 150, 5
+	for id := ItemID(10); id < n; id++ {
+		clicks := 2
+		if id == good {
+			clicks = 60
+		}
+		for i := range 100 {
+			f.RecordImpressions([]ItemID{id}, t0)
+			if i < clicks {
+				f.RecordSuccess(id, t0)
+			}
+		}
+	}
+	q := &Query{Now: t0 + 1000}
+	skip := func(id ItemID) bool { return id == skipped }
+	got := f.shortlist(q, shortlistSize(1), skip)
+	// 9 unshown (item 5 skipped), the good item, then the 54 lowest ids of
+	// the equal rest (ties go to the lower id).
+	var want []ItemID
+	for id := range ItemID(10) {
+		if id != skipped {
+			want = append(want, id)
+		}
+	}
+	for id := ItemID(10); len(want) < 10+53; id++ {
+		if id != good {
+			want = append(want, id)
+		}
+	}
+	want = append(want, good)
+	slices.Sort(want)
+	if len(got) != shortlistSize(1) || !slices.Equal(got, want) {
+		t.Fatalf("shortlist (%d items) = %v,\nwant (%d) %v", len(got), got, len(want), want)
+	}
+	// Among the shortlist the unshown items win most draws, the good item
+	// some, the skipped item none.
+	wins := map[ItemID]int{}
+	for r := range 2000 {
+		for _, p := range f.Pick(q, 1, NewExploreRand(9, uint64(r)), skip, nil) {
+			wins[p.Item]++
+		}
+	}
+	unshown := 0
+	for id := range ItemID(10) {
+		unshown += wins[id]
+	}
+	if wins[skipped] != 0 || unshown < 1500 || wins[good] == 0 {
+		t.Errorf("wins: unshown %d of 2000, good %d, skipped %d (want most, some, none)", unshown, wins[good], wins[skipped])
+	}
+	t.Logf("wins: unshown %d, good %d, others %d", unshown, wins[good], 2000-unshown-wins[good])
+}
