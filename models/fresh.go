@@ -105,6 +105,7 @@ type Fresh struct {
 	flag  []bool
 	dirty []ItemID
 	pool  []ItemID // ascending id
+	byUB  []ItemID // the pool by upper bound, best first, ties by lower id
 
 	served     map[uint64][]ItemID // session → served items not yet clicked
 	servedFIFO []uint64
@@ -169,7 +170,7 @@ func (f *Fresh) grow(id ItemID) {
 }
 
 func (f *Fresh) markDirty(id ItemID) {
-	f.ub[id] = f.upperBound(f.imps[id], f.succ[id])
+	f.setUB(id, f.upperBound(f.imps[id], f.succ[id]))
 	if !f.flag[id] {
 		f.flag[id] = true
 		f.dirty = append(f.dirty, id)
@@ -217,6 +218,7 @@ func (f *Fresh) setBorn(id ItemID, born, now int64) {
 		f.inPool[id] = true
 		i, _ := slices.BinarySearch(f.pool, id)
 		f.pool = slices.Insert(f.pool, i, id)
+		f.byUB = slices.Insert(f.byUB, f.ubSearch(id, f.ub[id]), id)
 		if len(f.pool) > 2*f.opts.MaxPool {
 			f.compact(now)
 		}
@@ -245,6 +247,7 @@ func (f *Fresh) compact(now int64) {
 		}
 	}
 	f.pool = keep
+	defer f.sortByUB()
 	if len(f.pool) <= f.opts.MaxPool {
 		return
 	}
@@ -382,24 +385,51 @@ func shortlistSize(n int) int { return max(64, 16*n) }
 
 // shortlist returns the eligible items (see eligible) with the m highest
 // upper confidence bounds, in ascending id order; all of them when there
-// are no more than m. Eligibility is asked only of items whose bound would
-// enter the m best. The content preference is left out of the bound:
-// computing it for the whole pool is the cost the shortlist avoids.
+// are no more than m. The pool is kept ordered by bound (byUB), so this
+// reads the first m eligible items. The content preference is left out of
+// the bound: computing it for the whole pool is the cost the shortlist
+// avoids.
 func (f *Fresh) shortlist(q *Query, m int, skip func(ItemID) bool) []ItemID {
-	ub := make([]Scored, len(f.pool))
-	for i, id := range f.pool {
-		ub[i] = Scored{id, f.ub[id]}
-	}
 	last, hasLast := q.Last()
-	top := topOf(make([]Scored, 0, m), ub, m, func(id ItemID) bool {
-		return (hasLast && id == last) || !f.IsFresh(id, q.Now) || (skip != nil && skip(id))
-	})
-	out := make([]ItemID, len(top))
-	for i, t := range top {
-		out[i] = t.Item
+	out := make([]ItemID, 0, m)
+	for _, id := range f.byUB {
+		if len(out) == m {
+			break
+		}
+		if (hasLast && id == last) || !f.IsFresh(id, q.Now) || (skip != nil && skip(id)) {
+			continue
+		}
+		out = append(out, id)
 	}
 	slices.Sort(out)
 	return out
+}
+
+// setUB changes id's upper bound, keeping byUB in order.
+func (f *Fresh) setUB(id ItemID, ub float64) {
+	if ub == f.ub[id] {
+		return
+	}
+	if f.inPool[id] {
+		i := f.ubSearch(id, f.ub[id])
+		f.byUB = slices.Delete(f.byUB, i, i+1)
+		f.ub[id] = ub
+		f.byUB = slices.Insert(f.byUB, f.ubSearch(id, ub), id)
+		return
+	}
+	f.ub[id] = ub
+}
+
+// ubSearch returns where id with bound ub lies, or would lie, in byUB.
+func (f *Fresh) ubSearch(id ItemID, ub float64) int {
+	i, _ := slices.BinarySearchFunc(f.byUB, id, func(e, _ ItemID) int { return cmpScore(f.ub[e], ub, e, id) })
+	return i
+}
+
+// sortByUB rebuilds byUB from the pool.
+func (f *Fresh) sortByUB() {
+	f.byUB = append(f.byUB[:0], f.pool...)
+	slices.SortFunc(f.byUB, func(a, b ItemID) int { return cmpScore(f.ub[a], f.ub[b], a, b) })
 }
 
 // upperBound is the posterior mean plus three standard deviations of an
@@ -469,11 +499,12 @@ func (f *Fresh) Load(key, val []byte) error {
 	f.born[id] = int64(binary.BigEndian.Uint64(val))
 	f.imps[id] = binary.BigEndian.Uint32(val[8:])
 	f.succ[id] = binary.BigEndian.Uint32(val[12:])
-	f.ub[id] = f.upperBound(f.imps[id], f.succ[id])
+	f.setUB(id, f.upperBound(f.imps[id], f.succ[id]))
 	if val[16] == 1 && !f.inPool[id] {
 		f.inPool[id] = true
 		i, _ := slices.BinarySearch(f.pool, id)
 		f.pool = slices.Insert(f.pool, i, id)
+		f.byUB = slices.Insert(f.byUB, f.ubSearch(id, f.ub[id]), id)
 	}
 	return nil
 }

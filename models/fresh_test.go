@@ -246,6 +246,21 @@ func TestFreshShortlist(t *testing.T) {
 	if len(got) != shortlistSize(1) || !slices.Equal(got, want) {
 		t.Fatalf("shortlist (%d items) = %v,\nwant (%d) %v", len(got), got, len(want), want)
 	}
+	// The bound order is the pool sorted by bound, and a model loaded from
+	// a flush has the same order and shortlist.
+	checkByUB(t, f)
+	kv := newMemKV()
+	if err := f.Flush(kv); err != nil {
+		t.Fatal(err)
+	}
+	g := newTestFresh(t, DefaultFreshOptions(), NewCatalog(), nil)
+	if err := kv.scan("", g.Load); err != nil {
+		t.Fatal(err)
+	}
+	checkByUB(t, g)
+	if again := g.shortlist(q, shortlistSize(1), skip); !slices.Equal(again, got) {
+		t.Errorf("after Flush and Load the shortlist is %v, want %v", again, got)
+	}
 	// Among the shortlist the unshown items win most draws, the good item
 	// some, the skipped item none.
 	wins := map[ItemID]int{}
@@ -262,4 +277,16 @@ func TestFreshShortlist(t *testing.T) {
 		t.Errorf("wins: unshown %d of 2000, good %d, skipped %d (want most, some, none)", unshown, wins[good], wins[skipped])
 	}
 	t.Logf("wins: unshown %d, good %d, others %d", unshown, wins[good], 2000-unshown-wins[good])
+}
+
+// checkByUB checks that byUB holds exactly the pool, ordered by upper
+// bound, best first, ties by lower id.
+func checkByUB(t *testing.T, f *Fresh) {
+	t.Helper()
+	got := slices.Clone(f.byUB)
+	want := slices.Clone(f.pool)
+	slices.SortFunc(want, func(a, b ItemID) int { return cmpScore(f.upperBound(f.imps[a], f.succ[a]), f.upperBound(f.imps[b], f.succ[b]), a, b) })
+	if !slices.Equal(got, want) {
+		t.Fatalf("byUB = %v,\nwant %v", got, want)
+	}
 }
