@@ -12,6 +12,7 @@ import (
 	"net/http"
 	"strconv"
 	"strings"
+	"sync"
 	"time"
 
 	"github.com/prometheus/client_golang/prometheus"
@@ -77,6 +78,7 @@ type Server struct {
 	mux      *http.ServeMux
 	requests *prometheus.CounterVec
 	rejected prometheus.Counter
+	bufs     sync.Pool // *[]byte response buffers of postNext
 }
 
 // NewServer returns the HTTP API; pub may be nil for a read-only server.
@@ -300,7 +302,20 @@ func (s *Server) postNext(w http.ResponseWriter, r *http.Request) {
 		writeAPIError(w, aerr)
 		return
 	}
-	writeJSON(w, http.StatusOK, res)
+	bp, _ := s.bufs.Get().(*[]byte)
+	if bp == nil {
+		bp = new([]byte)
+	}
+	defer s.bufs.Put(bp)
+	b, ok := appendNextJSON((*bp)[:0], &res)
+	*bp = b
+	if !ok {
+		writeJSON(w, http.StatusOK, res) // encoding/json's error for NaN or ±Inf
+		return
+	}
+	w.Header().Set("Content-Type", "application/json")
+	w.WriteHeader(http.StatusOK)
+	_, _ = w.Write(b)
 }
 
 // maxListLen bounds items and candidates per request; maxBatch bounds the
