@@ -285,7 +285,9 @@ func checkByUB(t *testing.T, f *Fresh) {
 	t.Helper()
 	got := slices.Clone(f.byUB)
 	want := slices.Clone(f.pool)
-	slices.SortFunc(want, func(a, b ItemID) int { return cmpScore(f.upperBound(f.imps[a], f.succ[a]), f.upperBound(f.imps[b], f.succ[b]), a, b) })
+	slices.SortFunc(want, func(a, b ItemID) int {
+		return cmpScore(f.upperBound(f.imps[a], f.succ[a]), f.upperBound(f.imps[b], f.succ[b]), a, b)
+	})
 	if !slices.Equal(got, want) {
 		t.Fatalf("byUB = %v,\nwant %v", got, want)
 	}
