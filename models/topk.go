@@ -45,25 +45,29 @@ func topOf(dst []Scored, cands []Scored, k int, skip func(ItemID) bool) []Scored
 	}
 	start := len(dst)
 	// h is a min-heap by rank: h[0] is the worst of the best k so far.
+	// Once it is full, floor is h[0]'s score: a candidate scoring below it
+	// is out after one float comparison, which is the common case.
 	h := dst
+	full, floor := false, 0.0
 	for _, c := range cands {
-		if c.Score <= 0 {
+		if c.Score <= 0 || (full && c.Score < floor) {
 			continue
 		}
-		id := c.Item
-		n := len(h) - start
-		full := n == k
 		// Ask skip only of a candidate that would enter: most do not.
-		if (full && !better(c, h[start])) || (skip != nil && skip(id)) {
+		if (full && !better(c, h[start])) || (skip != nil && skip(c.Item)) {
 			continue
 		}
 		if !full {
 			h = append(h, c)
-			topSiftUp(h[start:], n)
+			topSiftUp(h[start:], len(h)-start-1)
+			if full = len(h)-start == k; full {
+				floor = h[start].Score
+			}
 			continue
 		}
 		h[start] = c
 		topSiftDown(h[start:], 0)
+		floor = h[start].Score
 	}
 	part := h[start:]
 	slices.SortFunc(part, func(x, y Scored) int { return cmpScore(x.Score, y.Score, x.Item, y.Item) })
