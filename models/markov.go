@@ -4,6 +4,7 @@ package models
 // clicks and scores candidates from the session's last item.
 type Markov struct {
 	trans  *pairTable
+	tops   *rowTops // nil until a single-model query asks (keepTops)
 	prefix string
 }
 
@@ -19,7 +20,28 @@ func (m *Markov) Observe(o *Observation) {
 	if o.Repeat || len(o.Window) == 0 {
 		return
 	}
-	m.trans.add(o.Window[len(o.Window)-1].Item, o.Item, o.Weight)
+	a := o.Window[len(o.Window)-1].Item
+	m.trans.add(a, o.Item, o.Weight)
+	if m.tops != nil {
+		m.tops.bump(a, o.Item)
+	}
+}
+
+func (m *Markov) keepTops() {
+	if m.tops == nil {
+		m.tops = newRowTops(m.trans)
+	}
+}
+
+func (m *Markov) rankTop(q *Query, k int, skip func(ItemID) bool, dst []Scored) ([]Scored, bool) {
+	if m.tops == nil {
+		return dst, false
+	}
+	last, ok := q.Last()
+	if !ok {
+		return dst, true // no candidates at all
+	}
+	return m.tops.top(last, k, skip, dst)
 }
 
 func (m *Markov) Candidates(q *Query, out *Scores) {
@@ -43,11 +65,19 @@ func (m *Markov) ScoreItems(q *Query, items []ItemID, out []float64) {
 // Pairs returns the number of transitions held, for memory accounting.
 func (m *Markov) Pairs() int { return m.trans.size() }
 
-func (m *Markov) SetPrefix(prefix string)    { m.prefix = prefix }
-func (m *Markov) Prefix() string             { return m.prefix }
-func (m *Markov) Flush(kv KV) error          { return m.trans.flush(kv, m.prefix) }
-func (m *Markov) Load(key, val []byte) error { return m.trans.load(key[len(m.prefix):], val) }
-func (m *Markov) Rescale(f float64)          { m.trans.rescale(f) }
+func (m *Markov) SetPrefix(prefix string) { m.prefix = prefix }
+func (m *Markov) Prefix() string          { return m.prefix }
+func (m *Markov) Flush(kv KV) error       { return m.trans.flush(kv, m.prefix) }
+func (m *Markov) Load(key, val []byte) error {
+	return loadRows(m.trans, m.tops, key[len(m.prefix):], val)
+}
+
+func (m *Markov) Rescale(f float64) {
+	m.trans.rescale(f)
+	if m.tops != nil {
+		m.tops.rebuild()
+	}
+}
 
 // DirtyBytes estimates the next flush's size.
 func (m *Markov) DirtyBytes() int { return m.trans.dirtyBytes }

@@ -96,22 +96,34 @@ func (s *Set) Recommender(m Model) Recommender {
 	if b, ok := m.(*Blend); ok {
 		return b // filters by itself
 	}
-	return &availRecommender{m: m, cat: s.Catalog()}
+	r := &availRecommender{m: m, cat: s.Catalog()}
+	if t, ok := m.(topRanker); ok {
+		t.keepTops() // a single-model query reads kept lists (see rowTops)
+		r.top = t
+	}
+	return r
 }
 
 type availRecommender struct {
 	m    Model
+	top  topRanker // nil: rank every candidate
 	cat  *Catalog
 	pool scoresPool
 }
 
 func (r *availRecommender) Recommend(q *Query, k int, skip func(ItemID) bool, dst []Scored) []Scored {
+	drop := func(id ItemID) bool {
+		return !r.cat.Available(id) || (skip != nil && skip(id))
+	}
+	if r.top != nil {
+		if out, ok := r.top.rankTop(q, k, drop, dst); ok {
+			return out
+		}
+	}
 	out := r.pool.get()
 	defer r.pool.put(out)
 	r.m.Candidates(q, out)
-	return TopK(dst, out, k, func(id ItemID) bool {
-		return !r.cat.Available(id) || (skip != nil && skip(id))
-	})
+	return TopK(dst, out, k, drop)
 }
 
 // flag reads a 0/1 parameter.

@@ -8,6 +8,7 @@ import "fmt"
 type SR struct {
 	window int
 	rules  *pairTable
+	tops   *rowTops // nil until a single-model query asks (keepTops)
 	prefix string
 }
 
@@ -33,7 +34,27 @@ func (m *SR) Observe(o *Observation) {
 			continue
 		}
 		m.rules.add(a, o.Item, o.Weight/float64(gap))
+		if m.tops != nil {
+			m.tops.bump(a, o.Item)
+		}
 	}
+}
+
+func (m *SR) keepTops() {
+	if m.tops == nil {
+		m.tops = newRowTops(m.rules)
+	}
+}
+
+func (m *SR) rankTop(q *Query, k int, skip func(ItemID) bool, dst []Scored) ([]Scored, bool) {
+	if m.tops == nil {
+		return dst, false
+	}
+	last, ok := q.Last()
+	if !ok {
+		return dst, true // no candidates at all
+	}
+	return m.tops.top(last, k, skip, dst)
 }
 
 func (m *SR) Candidates(q *Query, out *Scores) {
@@ -57,8 +78,14 @@ func (m *SR) ScoreItems(q *Query, items []ItemID, out []float64) {
 func (m *SR) SetPrefix(prefix string)    { m.prefix = prefix }
 func (m *SR) Prefix() string             { return m.prefix }
 func (m *SR) Flush(kv KV) error          { return m.rules.flush(kv, m.prefix) }
-func (m *SR) Load(key, val []byte) error { return m.rules.load(key[len(m.prefix):], val) }
-func (m *SR) Rescale(f float64)          { m.rules.rescale(f) }
+func (m *SR) Load(key, val []byte) error { return loadRows(m.rules, m.tops, key[len(m.prefix):], val) }
+
+func (m *SR) Rescale(f float64) {
+	m.rules.rescale(f)
+	if m.tops != nil {
+		m.tops.rebuild()
+	}
+}
 
 // DirtyBytes estimates the next flush's size.
 func (m *SR) DirtyBytes() int { return m.rules.dirtyBytes }

@@ -1,0 +1,148 @@
+package models
+
+import (
+	"encoding/binary"
+	"slices"
+)
+
+// rowTops keeps, for every row of a pairTable whose raw weights are the
+// model's scores (sr, markov), the row's heaviest entries in rank order
+// (weight descending, ties by lower id, the order of TopK). A single-model
+// query then reads the first k entries the caller does not skip instead of
+// walking and ranking a row of hundreds: that walk was most of a replay's
+// time. The answer is the same as the walk's: when the kept entries run out
+// before k answers and the row has more, the query falls back to the walk.
+//
+// The invariant is that a row's list holds its min(n, size) heaviest
+// entries. Weights only grow between rescales, so a grown entry can only
+// move up, and an entry outside the list enters only by passing the last
+// one. Pruning keeps a row's cap heaviest entries, and size never exceeds
+// the cap, so it never removes a listed entry. A rescale multiplies every
+// weight by one factor, which rounding could turn into ties, so it rebuilds
+// every list.
+type rowTops struct {
+	t     *pairTable
+	size  int
+	lists [][]ItemID // by source item
+}
+
+// rowTopsSize is how many entries a list keeps: k = 20 answers past up to
+// 20 skipped session items, with room to spare.
+const rowTopsSize = 64
+
+func newRowTops(t *pairTable) *rowTops {
+	rt := &rowTops{t: t, size: rowTopsSize}
+	if t.cap > 0 {
+		rt.size = min(rt.size, t.cap)
+	}
+	rt.rebuild()
+	return rt
+}
+
+// rebuild builds every list from its row.
+func (rt *rowTops) rebuild() {
+	for a := range rt.t.rows {
+		rt.build(ItemID(a))
+	}
+}
+
+func (rt *rowTops) list(a ItemID) *[]ItemID {
+	if int(a) >= len(rt.lists) {
+		rt.lists = slices.Grow(rt.lists, int(a)+1-len(rt.lists))
+		rt.lists = rt.lists[:int(a)+1]
+	}
+	return &rt.lists[a]
+}
+
+// build builds a's list from its row.
+func (rt *rowTops) build(a ItemID) {
+	l := rt.list(a)
+	*l = (*l)[:0]
+	if int(a) >= len(rt.t.rows) || rt.t.rows[a].n == 0 {
+		return
+	}
+	all := make([]Scored, 0, rt.t.rows[a].n)
+	rt.t.rows[a].each(func(b ItemID, w float64) { all = append(all, Scored{b, w}) })
+	slices.SortFunc(all, func(x, y Scored) int { return cmpScore(x.Score, y.Score, x.Item, y.Item) })
+	for _, e := range all[:min(len(all), rt.size)] {
+		*l = append(*l, e.Item)
+	}
+}
+
+// bump notes that the weight of a→b grew (or a→b appeared).
+func (rt *rowTops) bump(a, b ItemID) {
+	l := rt.list(a)
+	L := *l
+	w := rt.t.get(a, b)
+	pos := slices.Index(L, b)
+	if pos < 0 {
+		if len(L) < rt.size { // the list holds the whole row
+			L = append(L, b)
+			pos = len(L) - 1
+		} else {
+			last := L[len(L)-1]
+			if cmpScore(w, rt.t.get(a, last), b, last) >= 0 {
+				return // not above the last listed entry
+			}
+			pos = len(L) - 1
+			L[pos] = b
+		}
+	}
+	for pos > 0 {
+		prev := L[pos-1]
+		if cmpScore(w, rt.t.get(a, prev), b, prev) >= 0 {
+			break
+		}
+		L[pos-1], L[pos] = b, prev
+		pos--
+	}
+	*l = L
+}
+
+// top appends the k best entries of row a for which skip is false, best
+// first, and reports whether that is the exact answer; when it is not (the
+// list ran out and the row has more) dst comes back unchanged.
+func (rt *rowTops) top(a ItemID, k int, skip func(ItemID) bool, dst []Scored) ([]Scored, bool) {
+	if k <= 0 || int(a) >= len(rt.t.rows) {
+		return dst, true
+	}
+	start := len(dst)
+	var L []ItemID
+	if int(a) < len(rt.lists) {
+		L = rt.lists[a]
+	}
+	for _, b := range L {
+		if skip != nil && skip(b) {
+			continue
+		}
+		if w := rt.t.get(a, b); w > 0 {
+			dst = append(dst, Scored{b, w})
+			if len(dst)-start == k {
+				return dst, true
+			}
+		}
+	}
+	if len(L) == rt.t.rows[a].n {
+		return dst, true
+	}
+	return dst[:start], false
+}
+
+// topRanker is a model that can answer a single-model query from kept
+// lists (see rowTops) once asked to keep them.
+type topRanker interface {
+	keepTops()
+	rankTop(q *Query, k int, skip func(ItemID) bool, dst []Scored) ([]Scored, bool)
+}
+
+// loadRows loads one stored row into t and, when lists are kept, rebuilds
+// that row's list.
+func loadRows(t *pairTable, rt *rowTops, key, val []byte) error {
+	if err := t.load(key, val); err != nil {
+		return err
+	}
+	if rt != nil && len(key) >= 4 {
+		rt.build(binary.BigEndian.Uint32(key))
+	}
+	return nil
+}
