@@ -13,11 +13,14 @@ import (
 // time. The answer is the same as the walk's: when the kept entries run out
 // before k answers and the row has more, the query falls back to the walk.
 //
-// The invariant is that a row's list holds its min(n, size) heaviest
-// entries. Weights only grow between rescales, so a grown entry can only
-// move up, and an entry outside the list enters only by passing the last
-// one. Pruning keeps a row's cap heaviest entries, and size never exceeds
-// the cap, so it never removes a listed entry. A rescale multiplies every
+// Only rows longer than the list size keep a list (a short row is walked:
+// it is cheap, and its list would cost up to 4 bytes a pair). The
+// invariant is that a long row's list holds its size heaviest entries.
+// Weights only grow between rescales, so a grown entry can only move up,
+// and an entry outside the list enters only by passing the last one.
+// Pruning keeps a row's cap heaviest entries, and size stays below the cap,
+// so a pruned row is still long and keeps every listed entry. A rescale
+// multiplies every
 // weight by one factor, which rounding could turn into ties, so it rebuilds
 // every list.
 type rowTops struct {
@@ -30,10 +33,15 @@ type rowTops struct {
 // 20 skipped session items, with room to spare.
 const rowTopsSize = 64
 
+// newRowTops returns the lists of t's rows, or nil when t's cap is too
+// small for any.
 func newRowTops(t *pairTable) *rowTops {
 	rt := &rowTops{t: t, size: rowTopsSize}
 	if t.cap > 0 {
-		rt.size = min(rt.size, t.cap)
+		rt.size = min(rt.size, t.cap-1)
+	}
+	if rt.size < 1 {
+		return nil
 	}
 	rt.rebuild()
 	return rt
@@ -54,13 +62,16 @@ func (rt *rowTops) list(a ItemID) *[]ItemID {
 	return &rt.lists[a]
 }
 
-// build builds a's list from its row.
+// build builds a's list from its row, or drops it for a short row.
 func (rt *rowTops) build(a ItemID) {
-	l := rt.list(a)
-	*l = (*l)[:0]
-	if int(a) >= len(rt.t.rows) || rt.t.rows[a].n == 0 {
+	if int(a) >= len(rt.t.rows) || rt.t.rows[a].n <= rt.size {
+		if int(a) < len(rt.lists) {
+			rt.lists[a] = nil
+		}
 		return
 	}
+	l := rt.list(a)
+	*l = (*l)[:0]
 	all := make([]Scored, 0, rt.t.rows[a].n)
 	rt.t.rows[a].each(func(b ItemID, w float64) { all = append(all, Scored{b, w}) })
 	slices.SortFunc(all, func(x, y Scored) int { return cmpScore(x.Score, y.Score, x.Item, y.Item) })
@@ -71,22 +82,24 @@ func (rt *rowTops) build(a ItemID) {
 
 // bump notes that the weight of a→b grew (or a→b appeared).
 func (rt *rowTops) bump(a, b ItemID) {
+	if rt.t.rows[a].n <= rt.size {
+		return // short rows keep no list
+	}
 	l := rt.list(a)
 	L := *l
+	if len(L) == 0 { // the row just grew long
+		rt.build(a)
+		return
+	}
 	w := rt.t.get(a, b)
 	pos := slices.Index(L, b)
 	if pos < 0 {
-		if len(L) < rt.size { // the list holds the whole row
-			L = append(L, b)
-			pos = len(L) - 1
-		} else {
-			last := L[len(L)-1]
-			if cmpScore(w, rt.t.get(a, last), b, last) >= 0 {
-				return // not above the last listed entry
-			}
-			pos = len(L) - 1
-			L[pos] = b
+		last := L[len(L)-1]
+		if cmpScore(w, rt.t.get(a, last), b, last) >= 0 {
+			return // not above the last listed entry
 		}
+		pos = len(L) - 1
+		L[pos] = b
 	}
 	for pos > 0 {
 		prev := L[pos-1]
@@ -100,17 +113,18 @@ func (rt *rowTops) bump(a, b ItemID) {
 }
 
 // top appends the k best entries of row a for which skip is false, best
-// first, and reports whether that is the exact answer; when it is not (the
-// list ran out and the row has more) dst comes back unchanged.
+// first, and reports whether that is the exact answer; when it is not (a
+// short row keeps no list, or the list ran out) dst comes back unchanged
+// and the caller walks the row.
 func (rt *rowTops) top(a ItemID, k int, skip func(ItemID) bool, dst []Scored) ([]Scored, bool) {
-	if k <= 0 || int(a) >= len(rt.t.rows) {
+	if k <= 0 || int(a) >= len(rt.t.rows) || rt.t.rows[a].n == 0 {
 		return dst, true
 	}
-	start := len(dst)
-	var L []ItemID
-	if int(a) < len(rt.lists) {
-		L = rt.lists[a]
+	if int(a) >= len(rt.lists) || len(rt.lists[a]) == 0 {
+		return dst, false
 	}
+	start := len(dst)
+	L := rt.lists[a]
 	for _, b := range L {
 		if skip != nil && skip(b) {
 			continue
@@ -121,9 +135,6 @@ func (rt *rowTops) top(a ItemID, k int, skip func(ItemID) bool, dst []Scored) ([
 				return dst, true
 			}
 		}
-	}
-	if len(L) == rt.t.rows[a].n {
-		return dst, true
 	}
 	return dst[:start], false
 }

@@ -92,16 +92,28 @@ func (s *Set) SessionIndex(opts SessionIndexOptions) (*SessionIndex, error) {
 // Recommender returns m as a recommender that never returns an item the
 // catalogue marks unavailable. Serve and replay should use it (rather than
 // [AsRecommender]) for single-model specs.
+//
+// For sr and markov it also has the model keep each long row's heaviest
+// entries in rank order from then on (rowTops), so a query reads k of
+// them instead of ranking the row; WalkRecommender keeps none.
 func (s *Set) Recommender(m Model) Recommender {
+	r := s.WalkRecommender(m)
+	if a, ok := r.(*availRecommender); ok {
+		if t, ok := m.(topRanker); ok {
+			t.keepTops()
+			a.top = t
+		}
+	}
+	return r
+}
+
+// WalkRecommender is Recommender without ranked lists: every query walks
+// and ranks the whole row.
+func (s *Set) WalkRecommender(m Model) Recommender {
 	if b, ok := m.(*Blend); ok {
 		return b // filters by itself
 	}
-	r := &availRecommender{m: m, cat: s.Catalog()}
-	if t, ok := m.(topRanker); ok {
-		t.keepTops() // a single-model query reads kept lists (see rowTops)
-		r.top = t
-	}
-	return r
+	return &availRecommender{m: m, cat: s.Catalog()}
 }
 
 type availRecommender struct {

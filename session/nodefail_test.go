@@ -297,9 +297,22 @@ func TestNodeFailureDuringIngest(t *testing.T) {
 // readStream reads the first n messages of the events stream in order.
 func readStream(t *testing.T, ctx context.Context, b *stream.Bus, n int) []stream.Msg {
 	t.Helper()
-	cons, err := b.JetStream().OrderedConsumer(ctx, b.Options().Stream, jetstream.OrderedConsumerConfig{})
-	if err != nil {
-		t.Fatal(err)
+	// Right after node restarts a consumer-create request can go
+	// unanswered (seen once under heavy load: the test hung for minutes),
+	// so each attempt gets its own deadline and a few retries.
+	var cons jetstream.Consumer
+	var err error
+	for attempt := 1; ; attempt++ {
+		actx, cancel := context.WithTimeout(ctx, 15*time.Second)
+		cons, err = b.JetStream().OrderedConsumer(actx, b.Options().Stream, jetstream.OrderedConsumerConfig{})
+		cancel()
+		if err == nil {
+			break
+		}
+		if attempt == 8 {
+			t.Fatalf("ordered consumer after %d attempts: %v", attempt, err)
+		}
+		t.Logf("ordered consumer, attempt %d: %v", attempt, err)
 	}
 	it, err := cons.Messages()
 	if err != nil {

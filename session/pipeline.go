@@ -23,6 +23,11 @@ type PipelineOptions struct {
 	// overflow and learn nothing, so a flood of made-up ids cannot grow
 	// memory without bound; raise the cap for a larger catalogue.
 	MaxItems int
+	// WalkRows answers single-model queries of sr and markov by walking
+	// the whole neighbour row, keeping no ranked lists (see
+	// models.Set.Recommender): slower queries, up to 4 bytes less a pair.
+	// serve's default blend keeps no lists either way.
+	WalkRows bool
 	Tracker  TrackerOptions
 	Set      models.SetOptions
 }
@@ -98,7 +103,11 @@ func NewPipeline(opts PipelineOptions) (*Pipeline, error) {
 		if err != nil {
 			return nil, fmt.Errorf("model %q: %w", spec, err)
 		}
-		p.recs[spec] = p.Set.Recommender(m)
+		if opts.WalkRows {
+			p.recs[spec] = p.Set.WalkRecommender(m)
+		} else {
+			p.recs[spec] = p.Set.Recommender(m)
+		}
 	}
 	p.Set.Pop()     // every pipeline answers empty sessions
 	p.Set.Catalog() // and knows availability from catalogue records

@@ -46,6 +46,10 @@ func main() {
 	learn := func(spec string) (*session.Pipeline, int64) {
 		o := session.DefaultPipelineOptions()
 		o.Models = []string{spec}
+		// Pairs as serve's default blend keeps them: a single-model
+		// pipeline would also keep ranked lists of long rows (up to 4 B a
+		// pair more), which the blend never uses.
+		o.WalkRows = true
 		p, err := session.NewPipeline(o)
 		if err != nil {
 			fail(err)
