@@ -64,7 +64,7 @@ func (rt *rowTops) list(a ItemID) *[]ItemID {
 
 // build builds a's list from its row, or drops it for a short row.
 func (rt *rowTops) build(a ItemID) {
-	if int(a) >= len(rt.t.rows) || rt.t.rows[a].n <= rt.size {
+	if int(a) >= len(rt.t.rows) || int(rt.t.rows[a].n) <= rt.size {
 		if int(a) < len(rt.lists) {
 			rt.lists[a] = nil
 		}
@@ -82,7 +82,7 @@ func (rt *rowTops) build(a ItemID) {
 
 // bump notes that the weight of a→b grew (or a→b appeared).
 func (rt *rowTops) bump(a, b ItemID) {
-	if rt.t.rows[a].n <= rt.size {
+	if int(rt.t.rows[a].n) <= rt.size {
 		return // short rows keep no list
 	}
 	l := rt.list(a)

@@ -103,7 +103,7 @@ func TestRowTopsAgainstWalk(t *testing.T) {
 			}
 			long, answered := 0, 0
 			for a := range ItemID(tt.items) {
-				if int(a) >= len(rt.t.rows) || rt.t.rows[a].n <= rt.size {
+				if int(a) >= len(rt.t.rows) || int(rt.t.rows[a].n) <= rt.size {
 					continue
 				}
 				long++
