@@ -293,6 +293,9 @@ func (e *Engine) applyOneLocked(m *stream.Msg) error {
 		if c.Served != nil {
 			e.p.Served(c.Served.Session, c.Served.Items, c.Served.TS)
 		}
+		for _, sv := range c.ServedBatch {
+			e.p.Served(sv.Session, sv.Items, sv.TS)
+		}
 		if c.Prior != nil {
 			e.p.ApplyPrior(c.Prior)
 		}

@@ -2,6 +2,7 @@ package session
 
 import (
 	"fmt"
+	"sync"
 	"testing"
 	"time"
 )
@@ -49,6 +50,46 @@ func TestExplorationSlot(t *testing.T) {
 		_, clicks := e.fresh.Stats(id)
 		return clicks == 1
 	})
+	// A burst of answers: their records share served_batch messages on
+	// the log, and every impression arrives exactly once.
+	const burst = 60
+	var wg sync.WaitGroup
+	shown := make(chan bool, burst)
+	for range burst {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			var r NextResult
+			doJSON(t, "POST", base+"/v1/next", `{"items":["A"],"k":3}`, &r)
+			for _, it := range r.Items {
+				if it.Item == "E" && it.Fresh {
+					shown <- true
+				}
+			}
+		}()
+	}
+	wg.Wait()
+	close(shown)
+	n := 0
+	for range shown {
+		n++
+	}
+	if n == 0 {
+		t.Fatal("no answer of the burst showed the fresh item")
+	}
+	waitFor(t, "the burst's impressions applied", 10*time.Second, func() bool {
+		e.mu.RLock()
+		defer e.mu.RUnlock()
+		imps, _ := e.fresh.Stats(id)
+		return imps == 1+n
+	})
+	time.Sleep(100 * time.Millisecond) // no record is applied twice
+	e.mu.RLock()
+	imps, _ := e.fresh.Stats(id)
+	e.mu.RUnlock()
+	if imps != 1+n {
+		t.Fatalf("impressions %d after the burst, want %d", imps, 1+n)
+	}
 	// Off means off.
 	s2 := newTestService(t, t.TempDir(), func(o *ServiceOptions) { o.Engine.ExploreEvery, o.Engine.Fresh = 0, fresh })
 	defer shutdown(t, s2)

@@ -79,7 +79,19 @@ type Server struct {
 	requests *prometheus.CounterVec
 	rejected prometheus.Counter
 	bufs     sync.Pool // *[]byte response buffers of postNext
+
+	servedMu    sync.Mutex
+	served      []stream.Served // records not yet on the log
+	servedTimer bool            // a FlushServed is scheduled
 }
+
+// servedDelay is how long served records wait to share one log message;
+// servedBatch how many fill one. A click credited to an exploration slot
+// comes seconds after the answer, well after the record is applied.
+const (
+	servedDelay = 20 * time.Millisecond
+	servedBatch = 200
+)
 
 // NewServer returns the HTTP API; pub may be nil for a read-only server.
 func NewServer(eng *Engine, pub Publisher, opts ServerOptions) *Server {
@@ -412,9 +424,42 @@ func (s *Server) recordServed(session string, res *NextResult) {
 	if len(items) == 0 {
 		return
 	}
-	c := stream.Control{Served: &stream.Served{Session: session, Items: items, TS: res.TS, Request: res.Request}}
+	rec := stream.Served{Session: session, Items: items, TS: res.TS, Request: res.Request}
+	s.servedMu.Lock()
+	s.served = append(s.served, rec)
+	var full []stream.Served
+	if len(s.served) >= servedBatch {
+		full, s.served = s.served, nil
+	} else if !s.servedTimer {
+		s.servedTimer = true
+		time.AfterFunc(servedDelay, s.FlushServed)
+	}
+	s.servedMu.Unlock()
+	s.publishServed(full)
+}
+
+// FlushServed puts the served records gathered so far on the log; the
+// service calls it at shutdown, before the bus closes.
+func (s *Server) FlushServed() {
+	s.servedMu.Lock()
+	batch := s.served
+	s.served, s.servedTimer = nil, false
+	s.servedMu.Unlock()
+	s.publishServed(batch)
+}
+
+func (s *Server) publishServed(batch []stream.Served) {
+	var c stream.Control
+	switch {
+	case len(batch) == 0 || s.pub == nil:
+		return
+	case len(batch) == 1:
+		c.Served = &batch[0]
+	default:
+		c.ServedBatch = batch
+	}
 	if err := s.pub.PublishControlAsync(c); err != nil {
-		s.opts.Logger.Debug("recording served items failed", "err", err)
+		s.opts.Logger.Debug("recording served items failed", "err", err, "records", len(batch))
 	}
 }
 

@@ -80,6 +80,7 @@ type Service struct {
 	st       *store.Store
 	ns       *stream.Server
 	bus      *stream.Bus
+	api      *Server
 	eng      *Engine
 	cons     *stream.Consumer
 	micro    micro.Service
@@ -194,6 +195,7 @@ func Open(ctx context.Context, opts ServiceOptions) (_ *Service, err error) {
 		Ready: s.ready, Gatherer: s.reg, Registerer: s.reg, Logger: opts.Logger, Token: opts.Token,
 		Snapshot: s.Snapshot,
 	})
+	s.api = srv
 	if s.micro, err = srv.AddNATSService(s.bus.Conn(), Version); err != nil {
 		return nil, err
 	}
@@ -331,6 +333,9 @@ func (s *Service) Shutdown(ctx context.Context) error {
 	}
 	if s.micro != nil {
 		_ = s.micro.Stop()
+	}
+	if s.api != nil {
+		s.api.FlushServed() // before the bus closes
 	}
 	if s.cons != nil {
 		s.cons.Stop()

@@ -14,6 +14,10 @@ type Control struct {
 	// Served records items a response showed in its exploration slots, so
 	// every replica counts the same impressions and credits a later click.
 	Served *Served `json:"served,omitempty"`
+	// ServedBatch is several responses' Served records in one message:
+	// serve gathers them for a few milliseconds, so exploration under load
+	// costs one log message per batch rather than one per response.
+	ServedBatch []Served `json:"served_batch,omitempty"`
 	// Prior carries one item's neighbours imported from another
 	// deployment (waymark priors import).
 	Prior *PriorRow `json:"prior,omitempty"`
@@ -61,6 +65,24 @@ type Served struct {
 	Request string   `json:"request,omitempty"`
 }
 
+// MaxServedBatch bounds the records of one served_batch message.
+const MaxServedBatch = 1000
+
+func (s *Served) validate(field string) error {
+	if err := validateID(field+".session", s.Session, MaxSessionBytes, false, true, ErrInvalidEvent); err != nil {
+		return err
+	}
+	if len(s.Items) == 0 || len(s.Items) > 1000 {
+		return &FieldError{Field: field + ".items", Reason: "must hold 1 to 1000 items", Err: ErrInvalidEvent}
+	}
+	for _, it := range s.Items {
+		if err := validateID(field+".items", it, MaxItemBytes, true, true, ErrInvalidEvent); err != nil {
+			return err
+		}
+	}
+	return nil
+}
+
 // DecodeControl decodes and validates a control message.
 func DecodeControl(data []byte) (Control, error) {
 	var c Control
@@ -68,7 +90,7 @@ func DecodeControl(data []byte) (Control, error) {
 		return c, &FieldError{Reason: "control message: " + err.Error(), Err: ErrInvalidEvent}
 	}
 	n := 0
-	for _, set := range []bool{c.Forget != "", c.Served != nil, c.Prior != nil} {
+	for _, set := range []bool{c.Forget != "", c.Served != nil, c.ServedBatch != nil, c.Prior != nil} {
 		if set {
 			n++
 		}
@@ -85,19 +107,20 @@ func DecodeControl(data []byte) (Control, error) {
 			return c, err
 		}
 	case c.Served != nil:
-		if err := validateID("served.session", c.Served.Session, MaxSessionBytes, false, true, ErrInvalidEvent); err != nil {
+		if err := c.Served.validate("served"); err != nil {
 			return c, err
 		}
-		if len(c.Served.Items) == 0 || len(c.Served.Items) > 1000 {
-			return c, &FieldError{Field: "served.items", Reason: "must hold 1 to 1000 items", Err: ErrInvalidEvent}
+	case c.ServedBatch != nil:
+		if len(c.ServedBatch) == 0 || len(c.ServedBatch) > MaxServedBatch {
+			return c, &FieldError{Field: "served_batch", Reason: fmt.Sprintf("must hold 1 to %d records", MaxServedBatch), Err: ErrInvalidEvent}
 		}
-		for _, it := range c.Served.Items {
-			if err := validateID("served.items", it, MaxItemBytes, true, true, ErrInvalidEvent); err != nil {
+		for i := range c.ServedBatch {
+			if err := c.ServedBatch[i].validate("served_batch"); err != nil {
 				return c, err
 			}
 		}
 	default:
-		return c, &FieldError{Reason: "missing: a control message must name a command (forget, served or prior)", Err: ErrInvalidEvent}
+		return c, &FieldError{Reason: "missing: a control message must name a command (forget, served, served_batch or prior)", Err: ErrInvalidEvent}
 	}
 	return c, nil
 }
