@@ -151,7 +151,8 @@ func (p *Pipeline) intern(item string) (models.ItemID, bool) {
 
 // Apply learns one valid event.
 func (p *Pipeline) Apply(ev *stream.Event) {
-	if _, known := p.Dict.Lookup(ev.Item); !known && p.Dict.Len() >= p.opts.MaxItems {
+	item, known := p.Dict.Lookup(ev.Item)
+	if !known && p.Dict.Len() >= p.opts.MaxItems {
 		p.cp.Overflow++
 		p.cp.Applied++
 		return
@@ -161,7 +162,9 @@ func (p *Pipeline) Apply(ev *stream.Event) {
 	} else if p.decay.NeedsRebase(ev.TS) {
 		p.rebase(ev.TS)
 	}
-	item, _ := p.Dict.Intern(ev.Item)
+	if !known {
+		item, _ = p.Dict.Intern(ev.Item)
+	}
 	p.cp.Touches++
 	c := p.Tracker.Observe(ev.Session, item, ev.TS, p.cp.Touches, p.nextSession, p.buf)
 	p.buf = c.Window[:0]
