@@ -57,18 +57,25 @@ func (m *IKNN) Observe(o *Observation) {
 	if o.Repeat {
 		return
 	}
+	top := o.Item
 	for _, s := range o.Window {
 		if s.Item == o.Item {
 			return // already co-visited with everything in the window
 		}
+		top = max(top, s.Item)
 	}
 	m.support.add(o.Item, o.Weight)
+	t := m.covis
+	t.grow(top)
+	// Row o.Item is updated once per window item and row s.Item once:
+	// rows are independent, so the order across rows does not matter.
+	ro := &t.rows[o.Item]
 	for i, s := range o.Window {
 		if seenBefore(o.Window[:i], s.Item) {
 			continue
 		}
-		m.covis.add(s.Item, o.Item, o.Weight)
-		m.covis.add(o.Item, s.Item, o.Weight)
+		t.addTo(&t.rows[s.Item], s.Item, o.Item, o.Weight)
+		t.addTo(ro, o.Item, s.Item, o.Weight)
 	}
 }
 

@@ -42,7 +42,7 @@ func TestPruneMatchesFullSort(t *testing.T) {
 				var pool slotPool
 				prune(&r, tt.keep, nil, &pool)
 				slices.SortFunc(all, func(a, b pairEntry) int { return cmpScore(a.v, b.v, a.k, b.k) })
-				if r.n != tt.keep {
+				if int(r.n) != tt.keep {
 					t.Fatalf("round %d: %d entries after prune, want %d", round, r.n, tt.keep)
 				}
 				for _, e := range all[:tt.keep] {

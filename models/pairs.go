@@ -25,6 +25,7 @@ type pairTable struct {
 	// row needs.
 	pool    slotPool
 	scratch []pairEntry
+	sink    uint32 // keeps warm's loads from being optimised away
 }
 
 type pairRow = row
@@ -54,13 +55,30 @@ func (t *pairTable) addTo(r *pairRow, a, b ItemID, w float64) {
 	if !r.dirty {
 		r.dirty = true
 		t.dirty = append(t.dirty, a)
-		t.dirtyBytes += 12*r.n + 16
+		t.dirtyBytes += 12*int(r.n) + 16
 	} else if r.n > n {
 		t.dirtyBytes += 12
 	}
-	if t.cap > 0 && r.n > 2*t.cap {
+	if t.cap > 0 && int(r.n) > 2*t.cap {
 		t.scratch = prune(r, t.cap, t.scratch, &t.pool)
 	}
+}
+
+// grow makes rows for every id up to max, so row pointers taken after it
+// stay valid while other rows are updated.
+func (t *pairTable) grow(max ItemID) { t.row(max) }
+
+// warm loads the row header and the first slot add(a, b) will probe and
+// returns the slot's key, for the caller to discard (see [Warmer]).
+func (t *pairTable) warm(a, b ItemID) uint32 {
+	if int(a) >= len(t.rows) {
+		return 0
+	}
+	r := &t.rows[a]
+	if len(r.slots) == 0 {
+		return 0
+	}
+	return r.slots[rowHash(b, uint32(len(r.slots)-1))].key
 }
 
 // get returns the weight of a→b.
@@ -83,7 +101,7 @@ func (t *pairTable) each(a ItemID, f func(b ItemID, w float64)) {
 func (t *pairTable) size() int {
 	n := 0
 	for i := range t.rows {
-		n += t.rows[i].n
+		n += int(t.rows[i].n)
 	}
 	return n
 }
