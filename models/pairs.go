@@ -25,7 +25,6 @@ type pairTable struct {
 	// row needs.
 	pool    slotPool
 	scratch []pairEntry
-	sink    uint32 // keeps warm's loads from being optimised away
 }
 
 type pairRow = row
@@ -67,19 +66,6 @@ func (t *pairTable) addTo(r *pairRow, a, b ItemID, w float64) {
 // grow makes rows for every id up to max, so row pointers taken after it
 // stay valid while other rows are updated.
 func (t *pairTable) grow(max ItemID) { t.row(max) }
-
-// warm loads the row header and the first slot add(a, b) will probe and
-// returns the slot's key, for the caller to discard (see [Warmer]).
-func (t *pairTable) warm(a, b ItemID) uint32 {
-	if int(a) >= len(t.rows) {
-		return 0
-	}
-	r := &t.rows[a]
-	if len(r.slots) == 0 {
-		return 0
-	}
-	return r.slots[rowHash(b, uint32(len(r.slots)-1))].key
-}
 
 // get returns the weight of a→b.
 func (t *pairTable) get(a, b ItemID) float64 {

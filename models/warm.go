@@ -1,46 +1,107 @@
 package models
 
-// Warmer is a learner that can start loading the memory its next Observe
-// will update. The pipeline warms every learner for a click before any of
-// them observes it: the loads of all learners are then in flight together,
-// where Observe alone would wait for one cache miss after another (each
-// click updates a dozen rows spread over tables of hundreds of megabytes).
-// Warm changes nothing a learner holds.
+// Warmer is a learner that can name the memory its next Observe will
+// update. The pipeline collects the rows every learner is about to update
+// for a click into one [WarmBatch] and loads them before any learner
+// observes it: the loads are then in flight together, where Observe alone
+// would wait for one cache miss after another (a click updates a dozen rows
+// spread over tables of hundreds of megabytes). Warming changes nothing a
+// learner holds.
 type Warmer interface {
-	Warm(o *Observation)
+	Warm(o *Observation, b *WarmBatch)
+}
+
+// WarmBatch is the list of row updates one click will make.
+type WarmBatch struct {
+	refs []warmRef
+	cols []colRef
+	sink uint32 // keeps the loads from being optimised away
+}
+
+type colRef struct {
+	c  *vector
+	id ItemID
+}
+
+type warmRef struct {
+	t    *pairTable
+	r    *row
+	a, b ItemID
+}
+
+// Reset empties the batch for the next click.
+func (w *WarmBatch) Reset() {
+	w.refs = w.refs[:0]
+	w.cols = w.cols[:0]
+}
+
+func (w *WarmBatch) addCol(c *vector, id ItemID) {
+	w.cols = append(w.cols, colRef{c, id})
+}
+
+func (w *WarmBatch) add(t *pairTable, a, b ItemID) {
+	w.refs = append(w.refs, warmRef{t: t, a: a, b: b})
+}
+
+// Run loads the batch's rows in two passes, the headers and then the first
+// slot each update probes. Each pass is a short loop of loads that do not
+// depend on each other, so the processor overlaps them; one pass per row
+// would stall on each header before reaching the next.
+func (w *WarmBatch) Run() {
+	var sink uint32
+	for _, x := range w.cols {
+		if int(x.id) < len(x.c.v) {
+			sink += uint32(x.c.v[x.id])
+		}
+	}
+	for i := range w.refs {
+		x := &w.refs[i]
+		x.r = nil
+		if int(x.a) < len(x.t.rows) {
+			x.r = &x.t.rows[x.a]
+			sink += uint32(len(x.r.slots))
+		}
+	}
+	for i := range w.refs {
+		x := &w.refs[i]
+		if x.r != nil && len(x.r.slots) > 0 {
+			sink += x.r.slots[rowHash(x.b, uint32(len(x.r.slots)-1))].key
+		}
+	}
+	w.sink += sink
 }
 
 // Warm implements [Warmer]: the rows of the window items and of the
 // clicked item.
-func (m *IKNN) Warm(o *Observation) {
+func (m *IKNN) Warm(o *Observation, b *WarmBatch) {
 	if o.Repeat {
 		return
 	}
-	t := m.covis
-	var sink uint32
+	b.addCol(&m.support, o.Item)
 	for _, s := range o.Window {
-		sink += t.warm(s.Item, o.Item) + t.warm(o.Item, s.Item)
+		b.add(m.covis, s.Item, o.Item)
+		b.add(m.covis, o.Item, s.Item)
 	}
-	t.sink += sink
 }
 
 // Warm implements [Warmer]: the rows of the items within the rule window.
-func (m *SR) Warm(o *Observation) {
+func (m *SR) Warm(o *Observation, b *WarmBatch) {
 	if o.Repeat {
 		return
 	}
 	n := len(o.Window)
-	var sink uint32
 	for gap := 1; gap <= m.window && gap <= n; gap++ {
-		sink += m.rules.warm(o.Window[n-gap].Item, o.Item)
+		b.add(m.rules, o.Window[n-gap].Item, o.Item)
 	}
-	m.rules.sink += sink
 }
 
 // Warm implements [Warmer]: the row of the previous item.
-func (m *Markov) Warm(o *Observation) {
+func (m *Markov) Warm(o *Observation, b *WarmBatch) {
 	if o.Repeat || len(o.Window) == 0 {
 		return
 	}
-	m.trans.sink += m.trans.warm(o.Window[len(o.Window)-1].Item, o.Item)
+	b.add(m.trans, o.Window[len(o.Window)-1].Item, o.Item)
 }
+
+// Warm implements [Warmer]: the clicked item's count.
+func (p *Pop) Warm(o *Observation, b *WarmBatch) { b.addCol(&p.counts, o.Item) }

@@ -73,6 +73,7 @@ type Pipeline struct {
 	recs     map[string]models.Recommender
 	learners []models.Model
 	warmers  []models.Warmer
+	warm     models.WarmBatch
 	decay    models.Decay
 	cp       store.Checkpoint
 	buf      []models.Step
@@ -189,9 +190,11 @@ func (p *Pipeline) Apply(ev *stream.Event) {
 		Repeat:      c.Repeat,
 		Weight:      p.decay.Weight(ev.TS),
 	}
+	p.warm.Reset()
 	for _, w := range p.warmers {
-		w.Warm(o)
+		w.Warm(o, &p.warm)
 	}
+	p.warm.Run()
 	for _, m := range p.learners {
 		m.Observe(o)
 	}
