@@ -3,6 +3,7 @@ package models
 import (
 	"math/rand/v2"
 	"slices"
+	"strconv"
 	"testing"
 )
 
@@ -126,5 +127,42 @@ func TestTopListShiftMatchesDeleteInsert(t *testing.T) {
 	}
 	if flagged != len(tl.items) {
 		t.Fatalf("%d items flagged, %d on the list", flagged, len(tl.items))
+	}
+}
+
+// TestIKNNCoVisitBound: with CoVisit S a click co-visits only the last S
+// items of its window; 0 co-visits the whole window. One session clicks
+// 1 2 3 4 (weight 1 each); the expected counts are worked out by hand from
+// the definition in IKNNOptions.
+func TestIKNNCoVisitBound(t *testing.T) {
+	all := [][2]ItemID{{1, 2}, {1, 3}, {1, 4}, {2, 3}, {2, 4}, {3, 4}}
+	tests := []struct {
+		coVisit int
+		want    map[[2]ItemID]float64 // absent pairs must be 0
+	}{
+		{0, map[[2]ItemID]float64{{1, 2}: 1, {1, 3}: 1, {1, 4}: 1, {2, 3}: 1, {2, 4}: 1, {3, 4}: 1}},
+		{2, map[[2]ItemID]float64{{1, 2}: 1, {1, 3}: 1, {2, 3}: 1, {2, 4}: 1, {3, 4}: 1}},
+		{1, map[[2]ItemID]float64{{1, 2}: 1, {2, 3}: 1, {3, 4}: 1}},
+	}
+	for _, tt := range tests {
+		t.Run("covis="+strconv.Itoa(tt.coVisit), func(t *testing.T) {
+			m := NewIKNN(IKNNOptions{CoVisit: tt.coVisit})
+			var w []Step
+			for _, id := range []ItemID{1, 2, 3, 4} {
+				o := Observation{Window: w, Item: id, Weight: 1}
+				var b WarmBatch
+				m.Warm(&o, &b)
+				b.Run()
+				m.Observe(&o)
+				w = append(w, Step{Item: id})
+			}
+			for _, p := range all {
+				for _, d := range [][2]ItemID{p, {p[1], p[0]}} {
+					if got := m.covis.get(d[0], d[1]); got != tt.want[p] {
+						t.Errorf("n(%d,%d) = %g, want %g", d[0], d[1], got, tt.want[p])
+					}
+				}
+			}
+		})
 	}
 }

@@ -53,10 +53,14 @@ func (t *topList) setIn(id ItemID, on bool) {
 // costs a few words, not a pass over the whole list.
 func (t *topList) touch(id ItemID) {
 	v := t.val(id)
+	on := t.onList(id)
+	if last := len(t.items) - 1; !on && last+1 >= t.n && !before(v, id, t.vals[last], t.items[last]) {
+		return // ranks after the last: most clicks, on the long tail
+	}
 	j := t.search(v, id)
 	var i int // the slot freed: id's old place, or the last place
 	switch {
-	case t.onList(id):
+	case on:
 		i = t.find(j, id)
 		if i < j {
 			// The stored value is above the new one (a rescale shrank
@@ -68,10 +72,7 @@ func (t *topList) touch(id ItemID) {
 			return
 		}
 	case len(t.items) >= t.n:
-		i = len(t.items) - 1
-		if j > i {
-			return // ranks after the last
-		}
+		i = len(t.items) - 1 // j <= i: it ranks before the last
 		t.setIn(t.items[i], false)
 	default:
 		i = len(t.items)

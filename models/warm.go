@@ -78,7 +78,7 @@ func (m *IKNN) Warm(o *Observation, b *WarmBatch) {
 		return
 	}
 	b.addCol(&m.support, o.Item)
-	for _, s := range o.Window {
+	for _, s := range m.coVisited(o.Window) {
 		b.add(m.covis, s.Item, o.Item)
 		b.add(m.covis, o.Item, s.Item)
 	}
