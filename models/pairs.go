@@ -122,8 +122,9 @@ func prune(r *row, n int, buf []pairEntry, pool *slotPool) []pairEntry {
 	} else {
 		n = len(all)
 	}
+	// Sized for 2n entries, the most the row holds before the next cut.
 	pool.put(r.slots)
-	r.slots = pool.get(rowSize(n))
+	r.slots = pool.get(rowSize(2 * n))
 	r.n = 0
 	for _, e := range all[:n] {
 		r.addPooled(e.k, e.v, pool)

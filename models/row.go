@@ -32,7 +32,7 @@ func (r *row) add(k uint32, w float64) { r.addPooled(k, w, nil) }
 func (r *row) addPooled(k uint32, w float64, pool *slotPool) {
 	if len(r.slots) == 0 {
 		r.slots = pool.get(4)
-	} else if int(r.n+1)*4 > len(r.slots)*3 {
+	} else if int(r.n+1)*5 > len(r.slots)*4 {
 		r.resize(len(r.slots)*2, pool)
 	}
 	mask := uint32(len(r.slots) - 1)
@@ -106,10 +106,17 @@ func (r *row) reset(n int) {
 }
 
 // rowSize is the slot count a row of n entries starts with: a power of
-// two that leaves room for one more entry below the 3/4 load limit.
+// two that leaves room for one more entry below the load limit of 4/5.
+// The limit lets a capped row's 2·cap+1 entries (401 for the default cap
+// of 200) fit in the 512 slots its cap needs, so a row that is cut back
+// over and over never grows to 1024: no rehash between prunes, and half
+// the memory at the peak. Probes stay short at that load: linear probing
+// expects about 3 probes for a hit and 13 for a miss at 4/5 (Knuth, The
+// Art of Computer Programming, vol. 3, section 6.4), and four slots share
+// a cache line.
 func rowSize(n int) int {
 	size := 4
-	for size*3 < n*4+4 {
+	for size*4 < (n+1)*5 {
 		size *= 2
 	}
 	return size
