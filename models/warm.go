@@ -25,7 +25,6 @@ type colRef struct {
 
 type warmRef struct {
 	t    *pairTable
-	r    *row
 	a, b ItemID
 }
 
@@ -54,18 +53,17 @@ func (w *WarmBatch) Run() {
 			sink += uint32(x.c.v[x.id])
 		}
 	}
-	for i := range w.refs {
-		x := &w.refs[i]
-		x.r = nil
+	for _, x := range w.refs {
 		if int(x.a) < len(x.t.rows) {
-			x.r = &x.t.rows[x.a]
-			sink += uint32(len(x.r.slots))
+			sink += uint32(len(x.t.rows[x.a].slots))
 		}
 	}
-	for i := range w.refs {
-		x := &w.refs[i]
-		if x.r != nil && len(x.r.slots) > 0 {
-			sink += x.r.slots[rowHash(x.b, uint32(len(x.r.slots)-1))].key
+	// The headers are in cache now: the second pass finds them at once.
+	for _, x := range w.refs {
+		if int(x.a) < len(x.t.rows) {
+			if r := &x.t.rows[x.a]; len(r.slots) > 0 {
+				sink += r.slots[rowHash(x.b, uint32(len(r.slots)-1))].key
+			}
 		}
 	}
 	w.sink += sink
