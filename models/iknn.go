@@ -16,6 +16,7 @@ import (
 // window already holds adds nothing.
 type IKNN struct {
 	span    int     // how many of the session's last items vote
+	coVisit int     // how many of the window's last items a click co-visits; 0: all
 	shrink  float64 // λ, in decayed-count units
 	halfMS  float64 // pipeline half-life, to bring λ to landmark units
 	ref     int64
@@ -29,6 +30,11 @@ type IKNNOptions struct {
 	Span       int     // last items that vote; default 1 (the usual item-kNN baseline)
 	Shrink     float64 // λ; default 0
 	CapPerItem int     // neighbours kept per item; 0 keeps all
+	// CoVisit bounds learning: a click co-visits only the last CoVisit
+	// items of the session's window, not all of them, which bounds the
+	// row updates per click at 2·CoVisit. 0 (the default) co-visits the
+	// whole window, the exact definition above.
+	CoVisit int
 }
 
 // NewIKNN returns an empty item-kNN model.
@@ -36,7 +42,7 @@ func NewIKNN(opts IKNNOptions) *IKNN {
 	if opts.Span < 1 {
 		opts.Span = 1
 	}
-	return &IKNN{span: opts.Span, shrink: opts.Shrink, covis: newPairTable(opts.CapPerItem)}
+	return &IKNN{span: opts.Span, coVisit: max(0, opts.CoVisit), shrink: opts.Shrink, covis: newPairTable(opts.CapPerItem)}
 }
 
 func (m *IKNN) Name() string {
@@ -46,6 +52,9 @@ func (m *IKNN) Name() string {
 	}
 	if m.shrink != 0 {
 		params = append(params, fmt.Sprintf("shrink=%g", m.shrink))
+	}
+	if m.coVisit != 0 {
+		params = append(params, fmt.Sprintf("covis=%d", m.coVisit))
 	}
 	if len(params) == 0 {
 		return "iknn"
@@ -57,19 +66,35 @@ func (m *IKNN) Observe(o *Observation) {
 	if o.Repeat {
 		return
 	}
+	top := o.Item
 	for _, s := range o.Window {
 		if s.Item == o.Item {
 			return // already co-visited with everything in the window
 		}
+		top = max(top, s.Item)
 	}
 	m.support.add(o.Item, o.Weight)
-	for i, s := range o.Window {
-		if seenBefore(o.Window[:i], s.Item) {
+	t := m.covis
+	t.grow(top)
+	// Row o.Item is updated once per window item and row s.Item once:
+	// rows are independent, so the order across rows does not matter.
+	ro := &t.rows[o.Item]
+	w := m.coVisited(o.Window)
+	for i, s := range w {
+		if seenBefore(w[:i], s.Item) {
 			continue
 		}
-		m.covis.add(s.Item, o.Item, o.Weight)
-		m.covis.add(o.Item, s.Item, o.Weight)
+		t.addTo(&t.rows[s.Item], s.Item, o.Item, o.Weight)
+		t.addTo(ro, o.Item, s.Item, o.Weight)
 	}
+}
+
+// coVisited returns the part of the window a click co-visits.
+func (m *IKNN) coVisited(w []Step) []Step {
+	if m.coVisit > 0 && len(w) > m.coVisit {
+		return w[len(w)-m.coVisit:]
+	}
+	return w
 }
 
 func seenBefore(w []Step, id ItemID) bool {

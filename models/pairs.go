@@ -19,6 +19,12 @@ type pairTable struct {
 	// dirtyBytes estimates what the next flush writes: 12 bytes a pair of
 	// the dirty rows. It may overcount pairs a prune removed.
 	dirtyBytes int
+	// pool and scratch keep learning free of allocation once rows are
+	// full: a capped row swings between cap and 2·cap entries, so the
+	// slot arrays one row outgrows or prunes away are the ones the next
+	// row needs.
+	pool    slotPool
+	scratch []pairEntry
 }
 
 type pairRow = row
@@ -37,20 +43,29 @@ func (t *pairTable) row(a ItemID) *pairRow {
 
 // add adds w to the pair a→b.
 func (t *pairTable) add(a, b ItemID, w float64) {
-	r := t.row(a)
+	t.addTo(t.row(a), a, b, w)
+}
+
+// addTo adds w to the pair a→b; r is row a. Callers that update one row
+// many times look it up once.
+func (t *pairTable) addTo(r *pairRow, a, b ItemID, w float64) {
 	n := r.n
-	r.add(b, w)
+	r.addPooled(b, w, &t.pool)
 	if !r.dirty {
 		r.dirty = true
 		t.dirty = append(t.dirty, a)
-		t.dirtyBytes += 12*r.n + 16
+		t.dirtyBytes += 12*int(r.n) + 16
 	} else if r.n > n {
 		t.dirtyBytes += 12
 	}
-	if t.cap > 0 && r.n > 2*t.cap {
-		prune(r, t.cap)
+	if t.cap > 0 && int(r.n) > 2*t.cap {
+		t.scratch = prune(r, t.cap, t.scratch, &t.pool)
 	}
 }
+
+// grow makes rows for every id up to max, so row pointers taken after it
+// stay valid while other rows are updated.
+func (t *pairTable) grow(max ItemID) { t.row(max) }
 
 // get returns the weight of a→b.
 func (t *pairTable) get(a, b ItemID) float64 {
@@ -72,7 +87,7 @@ func (t *pairTable) each(a ItemID, f func(b ItemID, w float64)) {
 func (t *pairTable) size() int {
 	n := 0
 	for i := range t.rows {
-		n += t.rows[i].n
+		n += int(t.rows[i].n)
 	}
 	return n
 }
@@ -82,26 +97,92 @@ type pairEntry struct {
 	v float64
 }
 
-// prune keeps the n heaviest entries of r, breaking ties by lower id.
-func prune(r *row, n int) {
-	all := make([]pairEntry, 0, r.n)
-	r.each(func(k ItemID, v float64) { all = append(all, pairEntry{k, v}) })
-	slices.SortFunc(all, func(a, b pairEntry) int {
-		switch {
-		case a.v > b.v:
-			return -1
-		case a.v < b.v:
-			return 1
-		case a.k < b.k:
-			return -1
-		case a.k > b.k:
-			return 1
+// heavier is the order prune keeps by: weight descending, then lower id.
+// Ids in a row are distinct, so it is a total order and the kept set does
+// not depend on the order entries are visited in.
+func heavier(a, b pairEntry) bool {
+	if a.v != b.v {
+		return a.v > b.v
+	}
+	return a.k < b.k
+}
+
+// prune keeps the n heaviest entries of r, breaking ties by lower id. It
+// selects them in linear expected time (nothing needs them sorted) in buf,
+// which it returns for reuse, and takes the new slot array from pool.
+func prune(r *row, n int, buf []pairEntry, pool *slotPool) []pairEntry {
+	all := buf[:0]
+	for _, s := range r.slots {
+		if s.key != 0 {
+			all = append(all, pairEntry{s.key - 1, s.val})
 		}
-		return 0
-	})
-	r.reset(n)
+	}
+	if n < len(all) {
+		selectHeaviest(all, n)
+	} else {
+		n = len(all)
+	}
+	// Sized for 2n entries, the most the row holds before the next cut.
+	pool.put(r.slots)
+	r.slots = pool.get(rowSize(2 * n))
+	r.n = 0
 	for _, e := range all[:n] {
-		r.add(e.k, e.v)
+		r.addPooled(e.k, e.v, pool)
+	}
+	return all
+}
+
+// selectHeaviest reorders e so that e[:n] holds its n heaviest entries, in
+// no particular order (quickselect, Hoare partition around a median of
+// three). The pivots depend only on e's contents and order, so the result
+// is deterministic.
+func selectHeaviest(e []pairEntry, n int) {
+	lo, hi := 0, len(e)-1
+	for hi > lo {
+		if hi-lo < 12 {
+			// Insertion sort finishes a short range.
+			for i := lo + 1; i <= hi; i++ {
+				for j := i; j > lo && heavier(e[j], e[j-1]); j-- {
+					e[j], e[j-1] = e[j-1], e[j]
+				}
+			}
+			return
+		}
+		mid := lo + (hi-lo)/2
+		if heavier(e[mid], e[lo]) {
+			e[mid], e[lo] = e[lo], e[mid]
+		}
+		if heavier(e[hi], e[lo]) {
+			e[hi], e[lo] = e[lo], e[hi]
+		}
+		if heavier(e[hi], e[mid]) {
+			e[hi], e[mid] = e[mid], e[hi]
+		}
+		p := e[mid] // median of lo, mid, hi
+		i, j := lo, hi
+		for i <= j {
+			for heavier(e[i], p) {
+				i++
+			}
+			for heavier(p, e[j]) {
+				j--
+			}
+			if i <= j {
+				e[i], e[j] = e[j], e[i]
+				i++
+				j--
+			}
+		}
+		// e[lo..j] are at least as heavy as p, e[i..hi] at most; any
+		// entry between them equals p.
+		switch {
+		case n <= j:
+			hi = j
+		case n >= i:
+			lo = i
+		default:
+			return
+		}
 	}
 }
 

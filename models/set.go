@@ -53,6 +53,7 @@ func NewSet(opts SetOptions) *Set {
 				Span:       p.Int("span", 1, 1),
 				Shrink:     p.Float("shrink", 0, 0),
 				CapPerItem: p.Int("cap", s.opts.CapPerItem, 0),
+				CoVisit:    p.Int("covis", 0, 0),
 			}), p.done()
 		},
 		"blend": buildBlend,

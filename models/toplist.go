@@ -47,41 +47,58 @@ func (t *topList) setIn(id ItemID, on bool) {
 	t.in[id] = on
 }
 
-// touch updates the list after id's value grew.
+// touch updates the list after id's value grew. The entries between id's
+// new place and its old one (or the end, for an item that pushes out the
+// last) shift by one: a popular item usually moves a few places, so this
+// costs a few words, not a pass over the whole list.
 func (t *topList) touch(id ItemID) {
 	v := t.val(id)
-	if t.onList(id) {
-		i := t.find(id, v)
-		t.items = slices.Delete(t.items, i, i+1)
-		t.vals = slices.Delete(t.vals, i, i+1)
-	} else if len(t.items) >= t.n {
-		last := len(t.items) - 1
-		if !before(v, id, t.vals[last], t.items[last]) {
-			return
-		}
-		t.setIn(t.items[last], false)
-		t.items, t.vals = t.items[:last], t.vals[:last]
+	on := t.onList(id)
+	if last := len(t.items) - 1; !on && last+1 >= t.n && !before(v, id, t.vals[last], t.items[last]) {
+		return // ranks after the last: most clicks, on the long tail
 	}
 	j := t.search(v, id)
-	t.items = slices.Insert(t.items, j, id)
-	t.vals = slices.Insert(t.vals, j, v)
+	var i int // the slot freed: id's old place, or the last place
+	switch {
+	case on:
+		i = t.find(j, id)
+		if i < j {
+			// The stored value is above the new one (a rescale shrank
+			// every count but not the stored copies): id moves down, to
+			// just before the first entry not before it.
+			copy(t.items[i:j-1], t.items[i+1:j])
+			copy(t.vals[i:j-1], t.vals[i+1:j])
+			t.items[j-1], t.vals[j-1] = id, v
+			return
+		}
+	case len(t.items) >= t.n:
+		i = len(t.items) - 1 // j <= i: it ranks before the last
+		t.setIn(t.items[i], false)
+	default:
+		i = len(t.items)
+		t.items = append(t.items, 0)
+		t.vals = append(t.vals, 0)
+	}
+	copy(t.items[j+1:i+1], t.items[j:i])
+	copy(t.vals[j+1:i+1], t.vals[j:i])
+	t.items[j], t.vals[j] = id, v
 	t.setIn(id, true)
 }
 
 // find returns the index of id, known to be on the list with a stored
-// value at most v (values only grow).
-func (t *topList) find(id ItemID, v float64) int {
-	// Entries ranking before (v, id) cannot be id's old place unless they
-	// tie on id, which they cannot: start at the first entry not before
-	// (v, id) and walk to id. Old and new values are usually close, so the
-	// walk is short.
-	for i := t.search(v, id); i < len(t.items); i++ {
+// value at most its new one (values only grow), given j = search(new, id).
+func (t *topList) find(j int, id ItemID) int {
+	// Entries ranking before (new, id) cannot be id's old place unless they
+	// tie on id, which they cannot: start at j and walk to id. Old and new
+	// values are usually close, so the walk is short.
+	for i := j; i < len(t.items); i++ {
 		if t.items[i] == id {
 			return i
 		}
 	}
-	// Not reached while the invariant holds; a full scan keeps it safe.
-	return slices.Index(t.items, id)
+	// Only after a rescale (stored values above the new one): the old
+	// place lies before j.
+	return slices.Index(t.items[:j], id)
 }
 
 // rebuild recomputes the list from scratch over ids 0..count-1.

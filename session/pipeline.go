@@ -77,9 +77,12 @@ type Pipeline struct {
 	Set      *models.Set
 	recs     map[string]models.Recommender
 	learners []models.Model
+	warmers  []models.Warmer
+	warm     models.WarmBatch
 	decay    models.Decay
 	cp       store.Checkpoint
 	buf      []models.Step
+	obs      models.Observation
 }
 
 // NewPipeline builds the models named in opts, with no state.
@@ -112,6 +115,11 @@ func NewPipeline(opts PipelineOptions) (*Pipeline, error) {
 	p.Set.Pop()     // every pipeline answers empty sessions
 	p.Set.Catalog() // and knows availability from catalogue records
 	p.learners = p.Set.Learners()
+	for _, m := range p.learners {
+		if w, ok := m.(models.Warmer); ok {
+			p.warmers = append(p.warmers, w)
+		}
+	}
 	for i, m := range p.learners {
 		if pm, ok := m.(models.Persistent); ok {
 			pm.SetPrefix("m/" + p.Set.Keys()[i] + "/")
@@ -160,7 +168,8 @@ func (p *Pipeline) intern(item string) (models.ItemID, bool) {
 
 // Apply learns one valid event.
 func (p *Pipeline) Apply(ev *stream.Event) {
-	if _, known := p.Dict.Lookup(ev.Item); !known && p.Dict.Len() >= p.opts.MaxItems {
+	item, known := p.Dict.Lookup(ev.Item)
+	if !known && p.Dict.Len() >= p.opts.MaxItems {
 		p.cp.Overflow++
 		p.cp.Applied++
 		return
@@ -170,11 +179,17 @@ func (p *Pipeline) Apply(ev *stream.Event) {
 	} else if p.decay.NeedsRebase(ev.TS) {
 		p.rebase(ev.TS)
 	}
-	item, _ := p.Dict.Intern(ev.Item)
+	if !known {
+		item, _ = p.Dict.Intern(ev.Item)
+	}
 	p.cp.Touches++
 	c := p.Tracker.Observe(ev.Session, item, ev.TS, p.cp.Touches, p.nextSession, p.buf)
 	p.buf = c.Window[:0]
-	o := models.Observation{
+	// The observation lives in the pipeline: passed to the learners
+	// through an interface, a local would escape and cost an allocation
+	// per event.
+	o := &p.obs
+	*o = models.Observation{
 		Window:      c.Window,
 		Item:        item,
 		TS:          ev.TS,
@@ -184,9 +199,15 @@ func (p *Pipeline) Apply(ev *stream.Event) {
 		Repeat:      c.Repeat,
 		Weight:      p.decay.Weight(ev.TS),
 	}
-	for _, m := range p.learners {
-		m.Observe(&o)
+	p.warm.Reset()
+	for _, w := range p.warmers {
+		w.Warm(o, &p.warm)
 	}
+	p.warm.Run()
+	for _, m := range p.learners {
+		m.Observe(o)
+	}
+	o.Window = nil // the window buffer is reused by the next event
 	p.cp.Applied++
 	if ev.TS > p.cp.Watermark {
 		p.cp.Watermark = ev.TS

@@ -69,8 +69,15 @@ type shard struct {
 	lru     entry // sentinel: lru.next is the most recently active
 	dirty   []*entry
 	deleted []string
-	_       [64]byte // keeps neighbouring shards' locks off one cache line
+	// free holds removed entries for reuse, window buffers included, so
+	// a tracker whose sessions come and go allocates nothing per click.
+	free []*entry
+	_    [64]byte // keeps neighbouring shards' locks off one cache line
 }
+
+// freeCap bounds each shard's free list: sessions start about as often as
+// others end, so a few entries cover the difference of the moment.
+const freeCap = 32
 
 type entry struct {
 	key        string
@@ -142,6 +149,25 @@ func (s *shard) removeLocked(e *entry, persist bool) {
 	if persist {
 		s.deleted = append(s.deleted, e.key)
 	}
+	// An entry on the dirty list is still read by the next flush (which
+	// skips it as dead); any other is referenced by nothing now.
+	if !e.dirty && len(s.free) < freeCap {
+		s.free = append(s.free, e)
+	}
+}
+
+// newEntryLocked returns an empty entry for session key, reusing a removed
+// one when it can.
+func (s *shard) newEntryLocked(key string, no uint64) *entry {
+	n := len(s.free)
+	if n == 0 {
+		return &entry{key: key, no: no, steps: make([]models.Step, 0, 4)}
+	}
+	e := s.free[n-1]
+	s.free[n-1] = nil
+	s.free = s.free[:n-1]
+	*e = entry{key: key, no: no, steps: e.steps[:0]}
+	return e
 }
 
 // Click is what Observe reports about one click.
@@ -172,7 +198,7 @@ func (t *Tracker) Observe(key string, item models.ItemID, ts int64, touch uint64
 		c.New = true
 	}
 	if e == nil {
-		e = &entry{key: key, no: nextNo(), steps: make([]models.Step, 0, 4)}
+		e = s.newEntryLocked(key, nextNo())
 		s.m[key] = e
 		s.pushFrontLocked(e)
 		c.New = true
