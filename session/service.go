@@ -39,7 +39,7 @@ type ServiceOptions struct {
 	// ReadyLag is the consumer lag under which /readyz answers ready
 	// (default 1000 messages).
 	ReadyLag uint64
-	// Batch and MaxAckPending tune the consumer (defaults 1000 and 500,000).
+	// Batch and MaxAckPending tune the consumer (defaults 1000 and 800,000).
 	Batch         int
 	MaxAckPending int
 	// Token, when set, guards write and admin HTTP endpoints.
@@ -67,7 +67,7 @@ func DefaultServiceOptions() ServiceOptions {
 		Store:         store.DefaultOptions(),
 		ReadyLag:      1000,
 		Batch:         1000,
-		MaxAckPending: 500_000,
+		MaxAckPending: 800_000,
 	}
 }
 
@@ -114,10 +114,11 @@ func Open(ctx context.Context, opts ServiceOptions) (_ *Service, err error) {
 	if opts.Logger == nil {
 		opts.Logger = slog.New(slog.DiscardHandler)
 	}
-	if opts.Engine.FlushEvents == 0 || opts.Engine.FlushEvents > opts.MaxAckPending/2 {
-		// Acks wait for flushes: flush well before the server stops
-		// delivering for want of acks.
-		opts.Engine.FlushEvents = min(DefaultEngineOptions().FlushEvents, opts.MaxAckPending/2)
+	if lim := opts.MaxAckPending / (commitsInFlight + 1); opts.Engine.FlushEvents == 0 || opts.Engine.FlushEvents > lim {
+		// Acks wait for commits, and up to commitsInFlight flushes wait
+		// for theirs while the next one fills: flush well before the
+		// server stops delivering for want of acks.
+		opts.Engine.FlushEvents = min(DefaultEngineOptions().FlushEvents, lim)
 	}
 	s := &Service{opts: opts, log: opts.Logger, reg: prometheus.NewRegistry(), errc: make(chan error, 4)}
 	defer func() {
