@@ -114,6 +114,15 @@ func Open(ctx context.Context, opts ServiceOptions) (_ *Service, err error) {
 	if opts.Logger == nil {
 		opts.Logger = slog.New(slog.DiscardHandler)
 	}
+	if opts.Engine.FlushBytes == 0 {
+		// The estimate runs above the bytes written; 10 % of the memtable
+		// keeps a flush well inside Badger's transaction limit (15 %).
+		mt := opts.Store.MemTableSize
+		if mt == 0 {
+			mt = store.DefaultOptions().MemTableSize
+		}
+		opts.Engine.FlushBytes = int(min(int64(DefaultEngineOptions().FlushBytes), mt/10))
+	}
 	if lim := opts.MaxAckPending / (commitsInFlight + 1); opts.Engine.FlushEvents == 0 || opts.Engine.FlushEvents > lim {
 		// Acks wait for commits, and up to commitsInFlight flushes wait
 		// for theirs while the next one fills: flush well before the
