@@ -54,6 +54,10 @@ type ServiceOptions struct {
 // Version is the service version reported to NATS service discovery.
 const Version = "0.1.0"
 
+// freshWait bounds how long the consumer waits to fill a batch, and so the
+// time from publication to learning when the stream is quiet.
+const freshWait = 20 * time.Millisecond
+
 // DefaultServiceOptions returns serve's defaults.
 func DefaultServiceOptions() ServiceOptions {
 	bus := stream.DefaultBusOptions()
@@ -194,6 +198,11 @@ func Open(ctx context.Context, opts ServiceOptions) (_ *Service, err error) {
 		StartSeq:      s.eng.ResumeSeq(),
 		Batch:         opts.Batch,
 		MaxAckPending: opts.MaxAckPending,
+		// A fetch returns when its batch is full or after MaxWait; below
+		// Batch/MaxWait events a second, that wait is the delay between
+		// an event's publication and its use in answers. Under load the
+		// batches fill first and the wait does not matter.
+		MaxWait: freshWait,
 	}, s.eng.Handle)
 	if err != nil {
 		return nil, fmt.Errorf("start consumer: %w", err)
