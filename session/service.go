@@ -39,7 +39,7 @@ type ServiceOptions struct {
 	// ReadyLag is the consumer lag under which /readyz answers ready
 	// (default 1000 messages).
 	ReadyLag uint64
-	// Batch and MaxAckPending tune the consumer (defaults 1000 and 500,000).
+	// Batch and MaxAckPending tune the consumer (defaults 1000 and 800,000).
 	Batch         int
 	MaxAckPending int
 	// Token, when set, guards write and admin HTTP endpoints.
@@ -54,6 +54,10 @@ type ServiceOptions struct {
 // Version is the service version reported to NATS service discovery.
 const Version = "0.1.0"
 
+// freshWait bounds how long the consumer waits to fill a batch, and so the
+// time from publication to learning when the stream is quiet.
+const freshWait = 20 * time.Millisecond
+
 // DefaultServiceOptions returns serve's defaults.
 func DefaultServiceOptions() ServiceOptions {
 	bus := stream.DefaultBusOptions()
@@ -67,7 +71,7 @@ func DefaultServiceOptions() ServiceOptions {
 		Store:         store.DefaultOptions(),
 		ReadyLag:      1000,
 		Batch:         1000,
-		MaxAckPending: 500_000,
+		MaxAckPending: 800_000,
 	}
 }
 
@@ -115,10 +119,20 @@ func Open(ctx context.Context, opts ServiceOptions) (_ *Service, err error) {
 	if opts.Logger == nil {
 		opts.Logger = slog.New(slog.DiscardHandler)
 	}
-	if opts.Engine.FlushEvents == 0 || opts.Engine.FlushEvents > opts.MaxAckPending/2 {
-		// Acks wait for flushes: flush well before the server stops
-		// delivering for want of acks.
-		opts.Engine.FlushEvents = min(DefaultEngineOptions().FlushEvents, opts.MaxAckPending/2)
+	if opts.Engine.FlushBytes == 0 {
+		// The estimate runs above the bytes written; 10 % of the memtable
+		// keeps a flush well inside Badger's transaction limit (15 %).
+		mt := opts.Store.MemTableSize
+		if mt == 0 {
+			mt = store.DefaultOptions().MemTableSize
+		}
+		opts.Engine.FlushBytes = int(min(int64(DefaultEngineOptions().FlushBytes), mt/10))
+	}
+	if lim := opts.MaxAckPending / (commitsInFlight + 1); opts.Engine.FlushEvents == 0 || opts.Engine.FlushEvents > lim {
+		// Acks wait for commits, and up to commitsInFlight flushes wait
+		// for theirs while the next one fills: flush well before the
+		// server stops delivering for want of acks.
+		opts.Engine.FlushEvents = min(DefaultEngineOptions().FlushEvents, lim)
 	}
 	s := &Service{opts: opts, log: opts.Logger, reg: prometheus.NewRegistry(), errc: make(chan error, 4)}
 	defer func() {
@@ -185,6 +199,11 @@ func Open(ctx context.Context, opts ServiceOptions) (_ *Service, err error) {
 		StartSeq:      s.eng.ResumeSeq(),
 		Batch:         opts.Batch,
 		MaxAckPending: opts.MaxAckPending,
+		// A fetch returns when its batch is full or after MaxWait; below
+		// Batch/MaxWait events a second, that wait is the delay between
+		// an event's publication and its use in answers. Under load the
+		// batches fill first and the wait does not matter.
+		MaxWait: freshWait,
 	}, s.eng.Handle)
 	if err != nil {
 		return nil, fmt.Errorf("start consumer: %w", err)

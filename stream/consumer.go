@@ -186,6 +186,12 @@ func (c *Consumer) create(ctx context.Context, start uint64) error {
 		FilterSubjects:    c.opts.FilterSubjects,
 		MaxRequestBatch:   max(c.opts.Batch, 1),
 		InactiveThreshold: c.opts.InactiveThreshold,
+		// The reader's checkpoint, never the server's consumer state,
+		// says where to start: every start replaces the consumer. So its
+		// state (delivered and pending sequences) need not reach disk;
+		// in a file it was rewritten whole, all pending sequences, many
+		// times a second, since acks come only after each commit.
+		MemoryStorage: true,
 	}
 	if start <= 1 || start <= st.FirstSeq {
 		cfg.DeliverPolicy = jetstream.DeliverAllPolicy
