@@ -113,10 +113,7 @@ func (m *IKNN) sim(a, b ItemID, nab float64, now int64) float64 {
 	if d == 0 {
 		return 0
 	}
-	if m.shrink != 0 && m.halfMS > 0 {
-		d += m.shrink * math.Exp2(float64(now-m.ref)/m.halfMS)
-	}
-	return nab / d
+	return nab / (d + m.shrinkTerm(now))
 }
 
 // SetDecay tells the model the pipeline's decay so shrinkage can be applied
@@ -138,9 +135,28 @@ func (m *IKNN) voters(q *Query, f func(a ItemID, pw float64)) {
 }
 
 func (m *IKNN) Candidates(q *Query, out *Scores) {
+	// What sim recomputes per pair, once per query and voter: the
+	// shrinkage term and the voter's support. The arithmetic is sim's, so
+	// the scores are the same to the bit.
+	extra := m.shrinkTerm(q.Now)
 	m.voters(q, func(a ItemID, pw float64) {
-		m.covis.each(a, func(b ItemID, w float64) { out.Add(b, pw*m.sim(a, b, w, q.Now)) })
+		sa := m.support.get(a)
+		m.covis.each(a, func(b ItemID, w float64) {
+			sim := 0.0
+			if d := math.Sqrt(sa * m.support.get(b)); d != 0 {
+				sim = w / (d + extra)
+			}
+			out.Add(b, pw*sim)
+		})
 	})
+}
+
+// shrinkTerm is what sim adds to a pair's denominator at now.
+func (m *IKNN) shrinkTerm(now int64) float64 {
+	if m.shrink != 0 && m.halfMS > 0 {
+		return m.shrink * math.Exp2(float64(now-m.ref)/m.halfMS)
+	}
+	return 0
 }
 
 func (m *IKNN) ScoreItems(q *Query, items []ItemID, out []float64) {

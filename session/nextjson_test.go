@@ -5,6 +5,7 @@ import (
 	"encoding/json"
 	"math"
 	"math/rand/v2"
+	"reflect"
 	"testing"
 )
 
@@ -112,6 +113,20 @@ func TestNextJSONRandom(t *testing.T) {
 		got, ok := appendNextJSON(nil, &r)
 		if want := encodingJSON(t, r); !ok || !bytes.Equal(got, want) {
 			t.Fatalf("answer %d: got %s (ok %v)\nwant %s", n, got, ok, want)
+		}
+	}
+}
+
+// TestNextJSONFieldsCovered fails when NextResult or Recommendation gains
+// a field, so the hand-written encoder is updated with it (the comparison
+// tests above would miss a new omitempty field they never set).
+func TestNextJSONFieldsCovered(t *testing.T) {
+	for _, c := range []struct {
+		v    any
+		want int
+	}{{NextResult{}, 8}, {Recommendation{}, 5}} {
+		if n := reflect.TypeOf(c.v).NumField(); n != c.want {
+			t.Errorf("%T has %d fields, appendNextJSON writes %d: update it and this test", c.v, n, c.want)
 		}
 	}
 }
