@@ -4,14 +4,15 @@ package models
 // clicks and scores candidates from the session's last item.
 type Markov struct {
 	trans  *pairTable
-	tops   *rowTops // nil until a single-model query asks (keepTops)
+	ranked // ranked lists, kept once a single-model query asks (keepTops)
 	prefix string
 }
 
 // NewMarkov returns a transition model keeping at most capPerItem successors
 // per item (0 keeps all).
 func NewMarkov(capPerItem int) *Markov {
-	return &Markov{trans: newPairTable(capPerItem)}
+	t := newPairTable(capPerItem)
+	return &Markov{trans: t, ranked: ranked{rows: t}}
 }
 
 func (m *Markov) Name() string { return "markov" }
@@ -22,26 +23,7 @@ func (m *Markov) Observe(o *Observation) {
 	}
 	a := o.Window[len(o.Window)-1].Item
 	m.trans.add(a, o.Item, o.Weight)
-	if m.tops != nil {
-		m.tops.bump(a, o.Item)
-	}
-}
-
-func (m *Markov) keepTops() {
-	if m.tops == nil {
-		m.tops = newRowTops(m.trans)
-	}
-}
-
-func (m *Markov) rankTop(q *Query, k int, skip func(ItemID) bool, dst []Scored) ([]Scored, bool) {
-	if m.tops == nil {
-		return dst, false
-	}
-	last, ok := q.Last()
-	if !ok {
-		return dst, true // no candidates at all
-	}
-	return m.tops.top(last, k, skip, dst)
+	m.bump(a, o.Item)
 }
 
 func (m *Markov) Candidates(q *Query, out *Scores) {
@@ -69,14 +51,12 @@ func (m *Markov) SetPrefix(prefix string) { m.prefix = prefix }
 func (m *Markov) Prefix() string          { return m.prefix }
 func (m *Markov) Flush(kv KV) error       { return m.trans.flush(kv, m.prefix) }
 func (m *Markov) Load(key, val []byte) error {
-	return loadRows(m.trans, m.tops, key[len(m.prefix):], val)
+	return m.load(key[len(m.prefix):], val)
 }
 
 func (m *Markov) Rescale(f float64) {
 	m.trans.rescale(f)
-	if m.tops != nil {
-		m.tops.rebuild()
-	}
+	m.rebuild()
 }
 
 // DirtyBytes estimates the next flush's size.

@@ -146,14 +146,51 @@ type topRanker interface {
 	rankTop(q *Query, k int, skip func(ItemID) bool, dst []Scored) ([]Scored, bool)
 }
 
-// loadRows loads one stored row into t and, when lists are kept, rebuilds
-// that row's list.
-func loadRows(t *pairTable, rt *rowTops, key, val []byte) error {
-	if err := t.load(key, val); err != nil {
+// ranked gives a model whose scores are one pair row's raw weights (sr,
+// markov) ranked lists of that table: embedded, it supplies topRanker.
+type ranked struct {
+	rows *pairTable
+	tops *rowTops // nil until keepTops
+}
+
+func (r *ranked) keepTops() {
+	if r.tops == nil {
+		r.tops = newRowTops(r.rows)
+	}
+}
+
+func (r *ranked) rankTop(q *Query, k int, skip func(ItemID) bool, dst []Scored) ([]Scored, bool) {
+	if r.tops == nil {
+		return dst, false
+	}
+	last, ok := q.Last()
+	if !ok {
+		return dst, true // no candidates at all
+	}
+	return r.tops.top(last, k, skip, dst)
+}
+
+// bump keeps the lists current after the weight of a→b grew.
+func (r *ranked) bump(a, b ItemID) {
+	if r.tops != nil {
+		r.tops.bump(a, b)
+	}
+}
+
+// rebuild rebuilds every list, after a rescale.
+func (r *ranked) rebuild() {
+	if r.tops != nil {
+		r.tops.rebuild()
+	}
+}
+
+// load loads one stored row and, when lists are kept, rebuilds its list.
+func (r *ranked) load(key, val []byte) error {
+	if err := r.rows.load(key, val); err != nil {
 		return err
 	}
-	if rt != nil && len(key) >= 4 {
-		rt.build(binary.BigEndian.Uint32(key))
+	if r.tops != nil && len(key) >= 4 {
+		r.tops.build(binary.BigEndian.Uint32(key))
 	}
 	return nil
 }

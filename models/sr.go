@@ -8,7 +8,7 @@ import "fmt"
 type SR struct {
 	window int
 	rules  *pairTable
-	tops   *rowTops // nil until a single-model query asks (keepTops)
+	ranked // ranked lists, kept once a single-model query asks (keepTops)
 	prefix string
 }
 
@@ -18,7 +18,8 @@ func NewSR(window, capPerItem int) *SR {
 	if window < 1 {
 		window = 1
 	}
-	return &SR{window: window, rules: newPairTable(capPerItem)}
+	t := newPairTable(capPerItem)
+	return &SR{window: window, rules: t, ranked: ranked{rows: t}}
 }
 
 func (m *SR) Name() string { return fmt.Sprintf("sr(window=%d)", m.window) }
@@ -34,27 +35,8 @@ func (m *SR) Observe(o *Observation) {
 			continue
 		}
 		m.rules.add(a, o.Item, o.Weight/float64(gap))
-		if m.tops != nil {
-			m.tops.bump(a, o.Item)
-		}
+		m.bump(a, o.Item)
 	}
-}
-
-func (m *SR) keepTops() {
-	if m.tops == nil {
-		m.tops = newRowTops(m.rules)
-	}
-}
-
-func (m *SR) rankTop(q *Query, k int, skip func(ItemID) bool, dst []Scored) ([]Scored, bool) {
-	if m.tops == nil {
-		return dst, false
-	}
-	last, ok := q.Last()
-	if !ok {
-		return dst, true // no candidates at all
-	}
-	return m.tops.top(last, k, skip, dst)
 }
 
 func (m *SR) Candidates(q *Query, out *Scores) {
@@ -78,13 +60,11 @@ func (m *SR) ScoreItems(q *Query, items []ItemID, out []float64) {
 func (m *SR) SetPrefix(prefix string)    { m.prefix = prefix }
 func (m *SR) Prefix() string             { return m.prefix }
 func (m *SR) Flush(kv KV) error          { return m.rules.flush(kv, m.prefix) }
-func (m *SR) Load(key, val []byte) error { return loadRows(m.rules, m.tops, key[len(m.prefix):], val) }
+func (m *SR) Load(key, val []byte) error { return m.load(key[len(m.prefix):], val) }
 
 func (m *SR) Rescale(f float64) {
 	m.rules.rescale(f)
-	if m.tops != nil {
-		m.tops.rebuild()
-	}
+	m.rebuild()
 }
 
 // DirtyBytes estimates the next flush's size.

@@ -4,7 +4,8 @@ import (
 	"math"
 	"slices"
 	"strconv"
-	"unicode/utf8"
+
+	"waymark/stream"
 )
 
 // appendNextJSON appends r as encoding/json's Encoder writes it (the same
@@ -26,7 +27,7 @@ func appendNextJSON(b []byte, r *NextResult) ([]byte, bool) {
 				b = append(b, ',')
 			}
 			b = append(b, `{"item":`...)
-			b = appendJSONString(b, it.Item)
+			b = stream.AppendJSONStringStd(b, it.Item)
 			b = append(b, `,"score":`...)
 			var ok bool
 			if b, ok = appendJSONFloat(b, it.Score); !ok {
@@ -43,7 +44,7 @@ func appendNextJSON(b []byte, r *NextResult) ([]byte, bool) {
 					if j > 0 {
 						b = append(b, ',')
 					}
-					b = appendJSONString(b, k)
+					b = stream.AppendJSONStringStd(b, k)
 					b = append(b, ':')
 					if b, ok = appendJSONFloat(b, it.Features[k]); !ok {
 						return b, false
@@ -62,7 +63,7 @@ func appendNextJSON(b []byte, r *NextResult) ([]byte, bool) {
 		b = append(b, ']')
 	}
 	b = append(b, `,"source":`...)
-	b = appendJSONString(b, r.Source)
+	b = stream.AppendJSONStringStd(b, r.Source)
 	b = append(b, `,"tracked":`...)
 	b = strconv.AppendBool(b, r.Tracked)
 	b = append(b, `,"known":`...)
@@ -70,14 +71,14 @@ func appendNextJSON(b []byte, r *NextResult) ([]byte, bool) {
 	b = append(b, `,"unknown":`...)
 	b = strconv.AppendInt(b, int64(r.Unknown), 10)
 	b = append(b, `,"request":`...)
-	b = appendJSONString(b, r.Request)
+	b = stream.AppendJSONStringStd(b, r.Request)
 	if len(r.Skipped) > 0 {
 		b = append(b, `,"skipped":[`...)
 		for i, s := range r.Skipped {
 			if i > 0 {
 				b = append(b, ',')
 			}
-			b = appendJSONString(b, s)
+			b = stream.AppendJSONStringStd(b, s)
 		}
 		b = append(b, ']')
 	}
@@ -104,62 +105,4 @@ func appendJSONFloat(b []byte, f float64) ([]byte, bool) {
 		}
 	}
 	return b, true
-}
-
-const hexDigits = "0123456789abcdef"
-
-// appendJSONString quotes s as encoding/json does with HTML escaping on (its
-// default): <, > and & as \u003c, \u003e, \u0026; control characters as
-// short escapes or \u00XX; invalid UTF-8 as \ufffd; U+2028 and U+2029
-// escaped.
-func appendJSONString(b []byte, s string) []byte {
-	b = append(b, '"')
-	start := 0
-	for i := 0; i < len(s); {
-		c := s[i]
-		if c < utf8.RuneSelf {
-			if c >= 0x20 && c != '"' && c != '\\' && c != '<' && c != '>' && c != '&' {
-				i++
-				continue
-			}
-			b = append(b, s[start:i]...)
-			switch c {
-			case '"', '\\':
-				b = append(b, '\\', c)
-			case '\b':
-				b = append(b, '\\', 'b')
-			case '\f':
-				b = append(b, '\\', 'f')
-			case '\n':
-				b = append(b, '\\', 'n')
-			case '\r':
-				b = append(b, '\\', 'r')
-			case '\t':
-				b = append(b, '\\', 't')
-			default:
-				b = append(b, '\\', 'u', '0', '0', hexDigits[c>>4], hexDigits[c&0xF])
-			}
-			i++
-			start = i
-			continue
-		}
-		r, size := utf8.DecodeRuneInString(s[i:])
-		if r == utf8.RuneError && size == 1 {
-			b = append(b, s[start:i]...)
-			b = append(b, `\ufffd`...)
-			i += size
-			start = i
-			continue
-		}
-		if r == '\u2028' || r == '\u2029' {
-			b = append(b, s[start:i]...)
-			b = append(b, '\\', 'u', '2', '0', '2', hexDigits[r&0xF])
-			i += size
-			start = i
-			continue
-		}
-		i += size
-	}
-	b = append(b, s[start:]...)
-	return append(b, '"')
 }

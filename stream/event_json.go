@@ -498,30 +498,44 @@ func goTypeName(t string) string {
 	return t
 }
 
-// appendJSONString appends s as a JSON string. It escapes what JSON requires,
-// replaces invalid UTF-8 with U+FFFD as encoding/json does, and escapes
-// U+2028/U+2029 so the output is also safe inside JavaScript.
-func appendJSONString(dst []byte, s string) []byte {
+// appendJSONString appends s as a JSON string in the canonical form. It
+// escapes what JSON requires, replaces invalid UTF-8 with U+FFFD as
+// encoding/json does, and escapes U+2028/U+2029 so the output is also safe
+// inside JavaScript.
+func appendJSONString(dst []byte, s string) []byte { return appendQuoted(dst, s, false) }
+
+// AppendJSONStringStd appends s quoted exactly as encoding/json's Encoder
+// writes it with its default HTML escaping: the canonical form's escapes,
+// and also <, > and & as \u003c, \u003e, \u0026 and \b, \f in short form.
+// Hand-written encoders of API answers use it to match encoding/json byte
+// for byte.
+func AppendJSONStringStd(dst []byte, s string) []byte { return appendQuoted(dst, s, true) }
+
+func appendQuoted(dst []byte, s string, std bool) []byte {
 	const hex = "0123456789abcdef"
 	dst = append(dst, '"')
 	start := 0
 	for i := 0; i < len(s); {
 		c := s[i]
 		if c < utf8.RuneSelf {
-			if c >= 0x20 && c != '"' && c != '\\' {
+			if c >= 0x20 && c != '"' && c != '\\' && (!std || (c != '<' && c != '>' && c != '&')) {
 				i++
 				continue
 			}
 			dst = append(dst, s[start:i]...)
-			switch c {
-			case '"', '\\':
+			switch {
+			case c == '"' || c == '\\':
 				dst = append(dst, '\\', c)
-			case '\n':
+			case c == '\n':
 				dst = append(dst, '\\', 'n')
-			case '\r':
+			case c == '\r':
 				dst = append(dst, '\\', 'r')
-			case '\t':
+			case c == '\t':
 				dst = append(dst, '\\', 't')
+			case std && c == '\b':
+				dst = append(dst, '\\', 'b')
+			case std && c == '\f':
+				dst = append(dst, '\\', 'f')
 			default:
 				dst = append(dst, '\\', 'u', '0', '0', hex[c>>4], hex[c&0xf])
 			}
