@@ -335,14 +335,22 @@ func (f *Fresh) Served(sessionNo uint64, items []ItemID, ts int64) {
 // eligible appends the pool items fresh at q.Now, available, not the
 // session's last item and not skipped, in ascending id order.
 func (f *Fresh) eligible(q *Query, skip func(ItemID) bool, dst []ItemID) []ItemID {
-	last, hasLast := q.Last()
+	out := f.ruledOut(q, skip)
 	for _, id := range f.pool {
-		if (hasLast && id == last) || !f.IsFresh(id, q.Now) || (skip != nil && skip(id)) {
-			continue
+		if !out(id) {
+			dst = append(dst, id)
 		}
-		dst = append(dst, id)
 	}
 	return dst
+}
+
+// ruledOut reports whether a pool item cannot compete for q: the session's
+// last item, no longer fresh, or skipped by the caller.
+func (f *Fresh) ruledOut(q *Query, skip func(ItemID) bool) func(ItemID) bool {
+	last, hasLast := q.Last()
+	return func(id ItemID) bool {
+		return (hasLast && id == last) || !f.IsFresh(id, q.Now) || (skip != nil && skip(id))
+	}
 }
 
 func (f *Fresh) affinity(q *Query, items []ItemID) []float64 {
@@ -372,8 +380,7 @@ func (f *Fresh) Pick(q *Query, n int, rng *rand.Rand, skip func(ItemID) bool, ds
 	aff := f.affinity(q, items)
 	draws := make([]Scored, len(items))
 	for i, id := range items { // ascending id: the draws are reproducible
-		a := f.opts.PriorA + float64(f.succ[id])
-		b := f.opts.PriorB + float64(f.imps[id]-f.succ[id])
+		a, b := f.posterior(f.imps[id], f.succ[id])
 		// TopK drops scores <= 0; a draw that underflows to 0 still competes.
 		draws[i] = Scored{id, max(sampleBeta(rng, a, b)*(1+f.opts.ContentBoost*aff[i]), math.SmallestNonzeroFloat64)}
 	}
@@ -390,16 +397,15 @@ func shortlistSize(n int) int { return max(64, 16*n) }
 // the bound: computing it for the whole pool is the cost the shortlist
 // avoids.
 func (f *Fresh) shortlist(q *Query, m int, skip func(ItemID) bool) []ItemID {
-	last, hasLast := q.Last()
+	ruledOut := f.ruledOut(q, skip)
 	out := make([]ItemID, 0, m)
 	for _, id := range f.byUB {
 		if len(out) == m {
 			break
 		}
-		if (hasLast && id == last) || !f.IsFresh(id, q.Now) || (skip != nil && skip(id)) {
-			continue
+		if !ruledOut(id) {
+			out = append(out, id)
 		}
-		out = append(out, id)
 	}
 	slices.Sort(out)
 	return out
@@ -432,11 +438,16 @@ func (f *Fresh) sortByUB() {
 	slices.SortFunc(f.byUB, func(a, b ItemID) int { return cmpScore(f.ub[a], f.ub[b], a, b) })
 }
 
+// posterior returns the Beta posterior's parameters after imps
+// impressions and succ clicks.
+func (f *Fresh) posterior(imps, succ uint32) (a, b float64) {
+	return f.opts.PriorA + float64(succ), f.opts.PriorB + float64(imps-succ)
+}
+
 // upperBound is the posterior mean plus three standard deviations of an
 // item's Beta posterior after imps impressions and succ clicks.
 func (f *Fresh) upperBound(imps, succ uint32) float64 {
-	a := f.opts.PriorA + float64(succ)
-	b := f.opts.PriorB + float64(imps-succ)
+	a, b := f.posterior(imps, succ)
 	return a/(a+b) + 3*math.Sqrt(a*b/((a+b)*(a+b)*(a+b+1)))
 }
 

@@ -109,11 +109,17 @@ func seenBefore(w []Step, id ItemID) bool {
 // sim returns the cosine of a and b given their co-visitation weight nab.
 // With shrinkage, λ is converted to landmark units at time now.
 func (m *IKNN) sim(a, b ItemID, nab float64, now int64) float64 {
-	d := math.Sqrt(m.support.get(a) * m.support.get(b))
+	return m.simFrom(m.support.get(a), b, nab, m.shrinkTerm(now))
+}
+
+// simFrom is sim with a's support and the shrinkage term already looked up,
+// so a query computes them once per voter and once per query.
+func (m *IKNN) simFrom(sa float64, b ItemID, nab, shrink float64) float64 {
+	d := math.Sqrt(sa * m.support.get(b))
 	if d == 0 {
 		return 0
 	}
-	return nab / (d + m.shrinkTerm(now))
+	return nab / (d + shrink)
 }
 
 // SetDecay tells the model the pipeline's decay so shrinkage can be applied
@@ -135,19 +141,10 @@ func (m *IKNN) voters(q *Query, f func(a ItemID, pw float64)) {
 }
 
 func (m *IKNN) Candidates(q *Query, out *Scores) {
-	// What sim recomputes per pair, once per query and voter: the
-	// shrinkage term and the voter's support. The arithmetic is sim's, so
-	// the scores are the same to the bit.
-	extra := m.shrinkTerm(q.Now)
+	shrink := m.shrinkTerm(q.Now)
 	m.voters(q, func(a ItemID, pw float64) {
 		sa := m.support.get(a)
-		m.covis.each(a, func(b ItemID, w float64) {
-			sim := 0.0
-			if d := math.Sqrt(sa * m.support.get(b)); d != 0 {
-				sim = w / (d + extra)
-			}
-			out.Add(b, pw*sim)
-		})
+		m.covis.each(a, func(b ItemID, w float64) { out.Add(b, pw*m.simFrom(sa, b, w, shrink)) })
 	})
 }
 

@@ -53,16 +53,7 @@ func startCluster(t *testing.T) ([]*stream.Server, []string) {
 	// Wait until JetStream has a meta leader and takes an R3 stream.
 	bo := stream.DefaultBusOptions()
 	bo.URL, bo.Replicas = strings.Join(urls, ","), 3
-	waitFor(t, "JetStream cluster ready", 60*time.Second, func() bool {
-		ctx, cancel := context.WithTimeout(context.Background(), 5*time.Second)
-		defer cancel()
-		b, err := stream.Connect(ctx, bo)
-		if err != nil {
-			return false
-		}
-		defer b.Close()
-		return b.EnsureStreams(ctx) == nil
-	})
+	waitClusterReady(t, bo)
 	return servers, urls
 }
 
@@ -136,4 +127,20 @@ func TestScaleOutOnACluster(t *testing.T) {
 	defer shutdown(t, c)
 	waitFor(t, "the bootstrapped replica catches up", 30*time.Second, func() bool { return c.Engine().Stats().EventsApplied == 191 })
 	same(a, b, c)
+}
+
+// waitClusterReady waits until JetStream has a meta leader and takes the
+// stream bo describes.
+func waitClusterReady(t *testing.T, bo stream.BusOptions) {
+	t.Helper()
+	waitFor(t, "JetStream cluster ready", 60*time.Second, func() bool {
+		ctx, cancel := context.WithTimeout(context.Background(), 5*time.Second)
+		defer cancel()
+		b, err := stream.Connect(ctx, bo)
+		if err != nil {
+			return false
+		}
+		defer b.Close()
+		return b.EnsureStreams(ctx) == nil
+	})
 }

@@ -442,51 +442,38 @@ func decodeBatch(t *testing.T, rec *httptest.ResponseRecorder, n int) batchAnswe
 
 // FuzzPostNextBatch: POST /v1/next/batch with arbitrary bodies.
 func FuzzPostNextBatch(f *testing.F) {
-	fx := newFuzzFixture(f)
-	for _, s := range []string{
+	fuzzBatch(f, "/v1/next/batch", []string{
 		`{"requests":[{"items":["A"],"k":3},{"session":"q1"},{"items":["A"],"k":0},{"session":"q1","items":["B"]}]}`,
 		`{"requests":[]}`, `{"requests":null}`, `{"requests":[null]}`, `{"requests":{}}`,
-	} {
-		f.Add([]byte(s))
-	}
-	f.Fuzz(func(t *testing.T, body []byte) {
-		rec := fx.serve(t, "POST", "/v1/next/batch", body, false)
-		if rec == nil || rec.Code != 200 {
-			return
-		}
-		var req nextBatchBody
-		if err := json.Unmarshal(body, &req); err != nil {
-			t.Fatalf("200 for a body that does not decode: %q: %v", body, err)
-		}
-		rep := decodeBatch(t, rec, len(req.Requests))
-		for i, r := range rep.Results {
-			if r.Error != nil {
-				continue
-			}
-			var res NextResult
-			if err := json.Unmarshal(r.Result, &res); err != nil {
-				t.Fatalf("result %d: %v", i, err)
-			}
-			checkRecs(t, res, wantK(req.Requests[i].K), r.Result)
-		}
+	}, func(t *testing.T, _ *fuzzFixture, q nextBody, res NextResult, raw []byte) {
+		checkRecs(t, res, wantK(q.K), raw)
 	})
 }
 
 // FuzzPostScoreBatch: POST /v1/score/batch with arbitrary bodies.
 func FuzzPostScoreBatch(f *testing.F) {
-	fx := newFuzzFixture(f)
-	for _, s := range []string{
+	fuzzBatch(f, "/v1/score/batch", []string{
 		`{"requests":[{"items":["A"],"candidates":["B","x"]},{"items":[""],"candidates":["A"]}]}`,
 		`{"requests":[]}`, `{"requests":[{}]}`, `{"requests":7}`,
-	} {
+	}, func(t *testing.T, fx *fuzzFixture, q scoreBody, res ScoreResult, raw []byte) {
+		fx.checkScore(t, q, res, raw)
+	})
+}
+
+// fuzzBatch fuzzes a batch route: a 200 must come only for a body that
+// decodes, with one result or error per request, and each result must pass
+// check against its request.
+func fuzzBatch[Q, R any](f *testing.F, path string, seeds []string, check func(t *testing.T, fx *fuzzFixture, q Q, res R, raw []byte)) {
+	fx := newFuzzFixture(f)
+	for _, s := range seeds {
 		f.Add([]byte(s))
 	}
 	f.Fuzz(func(t *testing.T, body []byte) {
-		rec := fx.serve(t, "POST", "/v1/score/batch", body, false)
+		rec := fx.serve(t, "POST", path, body, false)
 		if rec == nil || rec.Code != 200 {
 			return
 		}
-		var req scoreBatchBody
+		var req batchBody[Q]
 		if err := json.Unmarshal(body, &req); err != nil {
 			t.Fatalf("200 for a body that does not decode: %q: %v", body, err)
 		}
@@ -495,11 +482,11 @@ func FuzzPostScoreBatch(f *testing.F) {
 			if r.Error != nil {
 				continue
 			}
-			var res ScoreResult
+			var res R
 			if err := json.Unmarshal(r.Result, &res); err != nil {
 				t.Fatalf("result %d: %v", i, err)
 			}
-			fx.checkScore(t, req.Requests[i], res, r.Result)
+			check(t, fx, req.Requests[i], res, r.Result)
 		}
 	})
 }

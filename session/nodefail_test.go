@@ -58,16 +58,7 @@ func startRestartableCluster(t *testing.T) *restartableCluster {
 		}
 	})
 	bo := c.busOptions()
-	waitFor(t, "JetStream cluster ready", 60*time.Second, func() bool {
-		ctx, cancel := context.WithTimeout(context.Background(), 5*time.Second)
-		defer cancel()
-		b, err := stream.Connect(ctx, bo)
-		if err != nil {
-			return false
-		}
-		defer b.Close()
-		return b.EnsureStreams(ctx) == nil
-	})
+	waitClusterReady(t, bo)
 	return c
 }
 

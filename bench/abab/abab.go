@@ -204,3 +204,11 @@ func (r *Recorder) Pair(w io.Writer, p *Pair) {
 	fmt.Fprintln(w, p.String())
 	r.Record(p.Name, map[string]any{"a": p.A, "b": p.B, "ratios": p.Ratios, "median_a": p.MedianA(), "median_b": p.MedianB(), "ratio": p.Ratio(), "unit": p.Unit, "target": p.Target, "met": p.Met()})
 }
+
+// Verdict words whether a target is met, as every figure line prints it.
+func Verdict(ok bool) string {
+	if ok {
+		return "met"
+	}
+	return "MISSED"
+}

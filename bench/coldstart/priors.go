@@ -3,14 +3,12 @@ package main
 import (
 	"bufio"
 	"context"
-	"encoding/csv"
 	"encoding/json"
 	"errors"
 	"flag"
 	"fmt"
 	"io"
 	"os"
-	"strings"
 	"time"
 
 	"waymark/models"
@@ -117,106 +115,32 @@ type importOptions struct {
 }
 
 // readPriors reads a priors file and maps it as `waymark priors import`
-// does (cmd/waymark/priors.go): ids through the map, unmapped items
-// dropped or kept, weights scaled, rows left empty dropped. It returns the
-// rows to publish and how many were dropped.
+// does (session.ReadPriors): ids through the map, unmapped items dropped or
+// kept, weights scaled, rows left empty dropped. It returns the rows to
+// publish and how many were dropped.
 func readPriors(path string, o importOptions) ([]stream.PriorRow, int, error) {
 	if !(o.weight > 0) || (o.unmapped != "drop" && o.unmapped != "keep") {
 		return nil, 0, fmt.Errorf("priors: --weight must be > 0 and --unmapped drop or keep")
 	}
-	mapping := map[string]string{}
+	imp := session.PriorsImport{KeepUnmapped: o.unmapped == "keep", Weight: o.weight, Models: session.ParseModelList(o.models)}
 	if o.mapFile != "" {
 		var err error
-		if mapping, err = readMapping(o.mapFile); err != nil {
+		if imp.IDMap, err = session.ReadIDMap(o.mapFile); err != nil {
 			return nil, 0, err
 		}
-	}
-	keep := map[string]bool{}
-	for _, m := range strings.Split(o.models, ",") {
-		if m = strings.TrimSpace(m); m != "" {
-			keep[m] = true
-		}
-	}
-	mapID := func(id string) (string, bool) {
-		if o.mapFile == "" {
-			return id, true
-		}
-		if to, ok := mapping[id]; ok {
-			return to, true
-		}
-		return id, o.unmapped == "keep"
 	}
 	f, err := os.Open(path)
 	if err != nil {
 		return nil, 0, err
 	}
 	defer f.Close()
-	sc := bufio.NewScanner(f)
-	sc.Buffer(make([]byte, 1<<20), 64<<20)
 	var out []stream.PriorRow
-	dropped := 0
-	for line := 1; sc.Scan(); line++ {
-		if line == 1 {
-			var hdr struct {
-				Format  string `json:"format"`
-				Version int    `json:"version"`
-			}
-			if err := json.Unmarshal(sc.Bytes(), &hdr); err != nil || hdr.Format != session.PriorsFormat || hdr.Version != 1 {
-				return nil, 0, fmt.Errorf("%s: the first line is not a %s version 1 header", path, session.PriorsFormat)
-			}
-			continue
-		}
-		var row stream.PriorRow
-		if err := json.Unmarshal(sc.Bytes(), &row); err != nil {
-			return nil, 0, fmt.Errorf("%s: line %d: %w", path, line, err)
-		}
-		if len(keep) > 0 && !keep[row.Model] {
-			continue
-		}
-		item, ok := mapID(row.Item)
-		if !ok {
-			dropped++
-			continue
-		}
-		r := stream.PriorRow{Item: item}
-		for _, n := range row.Neighbors {
-			if to, ok := mapID(n.Item); ok {
-				r.Neighbors = append(r.Neighbors, stream.PriorNeighbor{Item: to, Weight: n.Weight * o.weight})
-			}
-		}
-		if len(r.Neighbors) == 0 {
-			dropped++
-			continue
-		}
-		if err := r.Validate(); err != nil {
-			return nil, 0, fmt.Errorf("%s: line %d: %w", path, line, err)
-		}
+	_, dropped, err := session.ReadPriors(f, imp, func(r stream.PriorRow) error {
 		out = append(out, r)
-	}
-	return out, dropped, sc.Err()
-}
-
-// readMapping reads from,to pairs; a first line "from,to" is a header.
-func readMapping(path string) (map[string]string, error) {
-	f, err := os.Open(path)
+		return nil
+	})
 	if err != nil {
-		return nil, err
+		return nil, 0, fmt.Errorf("%s: %w", path, err)
 	}
-	defer f.Close()
-	r := csv.NewReader(f)
-	r.FieldsPerRecord = 2
-	m := map[string]string{}
-	for n := 1; ; n++ {
-		rec, err := r.Read()
-		if errors.Is(err, io.EOF) {
-			return m, nil
-		}
-		if err != nil {
-			return nil, fmt.Errorf("id map %s: %w", path, err)
-		}
-		if n == 1 && rec[0] == "from" && rec[1] == "to" {
-			continue
-		}
-		m[rec[0]] = rec[1]
-	}
+	return out, dropped, nil
 }

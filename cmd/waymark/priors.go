@@ -1,16 +1,13 @@
 package main
 
 import (
-	"bufio"
 	"context"
-	"encoding/csv"
 	"encoding/json"
 	"errors"
 	"flag"
 	"fmt"
 	"io"
 	"os"
-	"strings"
 	"time"
 
 	"waymark/session"
@@ -101,28 +98,13 @@ func priorsImport(ctx context.Context, args []string, stdout, stderr io.Writer) 
 		fmt.Fprintln(stderr, "usage: waymark priors import [--map FILE] [--weight W] [--unmapped drop|keep] FILE")
 		return 2
 	}
-	mapping := map[string]string{}
+	o := session.PriorsImport{KeepUnmapped: *unmapped == "keep", Weight: *weight, Models: session.ParseModelList(*models)}
 	if *mapFile != "" {
 		var err error
-		if mapping, err = readMapping(*mapFile); err != nil {
+		if o.IDMap, err = session.ReadIDMap(*mapFile); err != nil {
 			fmt.Fprintln(stderr, "waymark priors import:", err)
 			return 1
 		}
-	}
-	keep := map[string]bool{}
-	for _, m := range strings.Split(*models, ",") {
-		if m = strings.TrimSpace(m); m != "" {
-			keep[m] = true
-		}
-	}
-	mapID := func(id string) (string, bool) {
-		if *mapFile == "" {
-			return id, true
-		}
-		if to, ok := mapping[id]; ok {
-			return to, true
-		}
-		return id, *unmapped == "keep"
 	}
 	f, err := os.Open(fs.Arg(0))
 	if err != nil {
@@ -142,10 +124,7 @@ func priorsImport(ctx context.Context, args []string, stdout, stderr io.Writer) 
 		fmt.Fprintln(stderr, "waymark priors import:", err)
 		return 1
 	}
-	sc := bufio.NewScanner(f)
-	sc.Buffer(make([]byte, 1<<20), 64<<20)
 	var batch [][]byte
-	rows, dropped, line := 0, 0, 0
 	flush := func() error {
 		if len(batch) == 0 {
 			return nil
@@ -155,58 +134,15 @@ func priorsImport(ctx context.Context, args []string, stdout, stderr io.Writer) 
 		return err
 	}
 	start := time.Now()
-	for sc.Scan() {
-		line++
-		if line == 1 {
-			var hdr struct {
-				Format  string `json:"format"`
-				Version int    `json:"version"`
-			}
-			if err := json.Unmarshal(sc.Bytes(), &hdr); err != nil || hdr.Format != session.PriorsFormat || hdr.Version != 1 {
-				fmt.Fprintf(stderr, "waymark priors import: %s: the first line is not a %s version 1 header\n", fs.Arg(0), session.PriorsFormat)
-				return 1
-			}
-			continue
+	rows, dropped, err := session.ReadPriors(f, o, func(row stream.PriorRow) error {
+		msg, _ := json.Marshal(stream.Control{Prior: &row})
+		if batch = append(batch, msg); len(batch) == 1000 {
+			return flush()
 		}
-		var row stream.PriorRow
-		if err := json.Unmarshal(sc.Bytes(), &row); err != nil {
-			fmt.Fprintf(stderr, "waymark priors import: line %d: %v\n", line, err)
-			return 1
-		}
-		if len(keep) > 0 && !keep[row.Model] {
-			continue
-		}
-		item, ok := mapID(row.Item)
-		if !ok {
-			dropped++
-			continue
-		}
-		out := stream.PriorRow{Item: item}
-		for _, n := range row.Neighbors {
-			if to, ok := mapID(n.Item); ok {
-				out.Neighbors = append(out.Neighbors, stream.PriorNeighbor{Item: to, Weight: n.Weight * *weight})
-			}
-		}
-		if len(out.Neighbors) == 0 {
-			dropped++
-			continue
-		}
-		if err := out.Validate(); err != nil {
-			fmt.Fprintf(stderr, "waymark priors import: line %d: %v\n", line, err)
-			return 1
-		}
-		msg, _ := json.Marshal(stream.Control{Prior: &out})
-		batch = append(batch, msg)
-		rows++
-		if len(batch) == 1000 {
-			if err := flush(); err != nil {
-				fmt.Fprintln(stderr, "waymark priors import:", err)
-				return 1
-			}
-		}
-	}
-	if err := sc.Err(); err != nil {
-		fmt.Fprintln(stderr, "waymark priors import:", err)
+		return nil
+	})
+	if err != nil {
+		fmt.Fprintf(stderr, "waymark priors import: %s: %v\n", fs.Arg(0), err)
 		return 1
 	}
 	if err := flush(); err != nil {
@@ -215,29 +151,4 @@ func priorsImport(ctx context.Context, args []string, stdout, stderr io.Writer) 
 	}
 	fmt.Fprintf(stdout, "imported %d neighbour lists (weight %g), dropped %d unmapped, in %s\n", rows, *weight, dropped, time.Since(start).Round(time.Millisecond))
 	return 0
-}
-
-// readMapping reads from,to pairs; a first line "from,to" is a header.
-func readMapping(path string) (map[string]string, error) {
-	f, err := os.Open(path)
-	if err != nil {
-		return nil, err
-	}
-	defer f.Close()
-	r := csv.NewReader(f)
-	r.FieldsPerRecord = 2
-	m := map[string]string{}
-	for n := 1; ; n++ {
-		rec, err := r.Read()
-		if errors.Is(err, io.EOF) {
-			return m, nil
-		}
-		if err != nil {
-			return nil, fmt.Errorf("id map %s: %w", path, err)
-		}
-		if n == 1 && rec[0] == "from" && rec[1] == "to" {
-			continue
-		}
-		m[rec[0]] = rec[1]
-	}
 }

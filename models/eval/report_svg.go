@@ -83,13 +83,7 @@ func svgOpen(b *strings.Builder, title string) {
 func lineChart(title, xname string, xlabels []string, ss []series) template.HTML {
 	var b strings.Builder
 	svgOpen(&b, title)
-	ymax := 0.0
-	for _, s := range ss {
-		for _, v := range s.Values {
-			ymax = max(ymax, v)
-		}
-	}
-	ymax = niceMax(ymax)
+	ymax := niceMax(seriesMax(ss))
 	plotW := float64(chartW - marginL - marginR)
 	plotH := float64(chartH - marginT - marginB)
 	xpos := func(i int) float64 {
@@ -127,13 +121,7 @@ func lineChart(title, xname string, xlabels []string, ss []series) template.HTML
 func barChart(title string, xlabels []string, ss []series, yfmt func(float64) string) template.HTML {
 	var b strings.Builder
 	svgOpen(&b, title)
-	ymax := 0.0
-	for _, s := range ss {
-		for _, v := range s.Values {
-			ymax = max(ymax, v)
-		}
-	}
-	ymax = niceMax(ymax)
+	ymax := niceMax(seriesMax(ss))
 	plotW := float64(chartW - marginL - marginR)
 	plotH := float64(chartH - marginT - marginB)
 	groupW := plotW / float64(max(1, len(xlabels)))
@@ -151,4 +139,15 @@ func barChart(title string, xlabels []string, ss []series, yfmt func(float64) st
 	}
 	b.WriteString(`</svg>`)
 	return template.HTML(b.String())
+}
+
+// seriesMax is the largest value of any series, 0 for none.
+func seriesMax(ss []series) float64 {
+	m := 0.0
+	for _, s := range ss {
+		for _, v := range s.Values {
+			m = max(m, v)
+		}
+	}
+	return m
 }

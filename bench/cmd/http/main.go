@@ -266,7 +266,7 @@ func run(args []string) error {
 		fmt.Printf("  round %d at half peak: serve %s req/s p50 %.0fµs p90 %.0fµs p99 %.0fµs p99.9 %.0fµs; bare %s req/s p50 %.0fµs p99 %.0fµs\n", i+1,
 			abab.Fmt(halfA[i].Rate), halfA[i].P50, halfA[i].P90, halfA[i].P99, halfA[i].P999, abab.Fmt(halfB[i].Rate), halfB[i].P50, halfB[i].P99)
 	}
-	fmt.Printf("  target: serve p99 <= 2 ms at half of peak: %s (median p99 %.0fµs)\n", verdict(hp.MedianA() <= 2000), hp.MedianA())
+	fmt.Printf("  target: serve p99 <= 2 ms at half of peak: %s (median p99 %.0fµs)\n", abab.Verdict(hp.MedianA() <= 2000), hp.MedianA())
 	rec.Record("half peak rounds", map[string]any{"serve": halfA, "bare": halfB, "target_us": 2000, "met": hp.MedianA() <= 2000})
 	return nil
 }
@@ -303,11 +303,4 @@ func writeBodies(path string, items, k int, s *svc.Serve) (int, error) {
 		return 0, err
 	}
 	return total / n, f.Close()
-}
-
-func verdict(ok bool) string {
-	if ok {
-		return "met"
-	}
-	return "MISSED"
 }

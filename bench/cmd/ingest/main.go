@@ -82,6 +82,13 @@ type common struct {
 	serveArgs string
 }
 
+// fromTemplate copies the pre-filled stream template into a fresh folder
+// of the work folder; the caller removes it.
+func (c *common) fromTemplate(name string) (string, error) {
+	dir := filepath.Join(c.work, name)
+	return dir, svc.CopyDir(c.template, dir)
+}
+
 // start starts serve on dir with the extra flags.
 func (c *common) start(dir string) (*svc.Serve, error) {
 	return svc.Start(c.waymark, dir, strings.Fields(c.serveArgs)...)
@@ -320,9 +327,9 @@ func runBus(args []string) error {
 	fmt.Printf("bus: serve (embedded server, file storage, default flush, default models) consuming a pre-filled stream of %d events vs the bare consumer\n", c.events)
 	pair, err := abab.Run("ingest through the bus, pre-filled: serve (A) vs bare decode+ack consumer (B)", "events/s", c.rounds,
 		func(r int) (float64, error) {
-			dir := filepath.Join(c.work, fmt.Sprintf("bus-a-%d", r))
+			dir, err := c.fromTemplate(fmt.Sprintf("bus-a-%d", r))
 			defer os.RemoveAll(dir)
-			if err := svc.CopyDir(c.template, dir); err != nil {
+			if err != nil {
 				return 0, err
 			}
 			s, err := c.start(dir)
@@ -349,9 +356,9 @@ func runBus(args []string) error {
 			return p.Rate(), nil
 		},
 		func(r int) (float64, error) {
-			dir := filepath.Join(c.work, fmt.Sprintf("bus-b-%d", r))
+			dir, err := c.fromTemplate(fmt.Sprintf("bus-b-%d", r))
 			defer os.RemoveAll(dir)
-			if err := svc.CopyDir(c.template, dir); err != nil {
+			if err != nil {
 				return 0, err
 			}
 			ch, err := startChild(self(), "--dir", filepath.Join(dir, "nats"), "--events", fmt.Sprint(c.events))
@@ -475,9 +482,9 @@ func runRestart(args []string) error {
 		return err
 	}
 	defer closeRec()
-	dir := filepath.Join(c.work, "restart")
+	dir, err := c.fromTemplate("restart")
 	defer os.RemoveAll(dir)
-	if err := svc.CopyDir(c.template, dir); err != nil {
+	if err != nil {
 		return err
 	}
 	s, err := c.start(dir)
@@ -523,7 +530,7 @@ func runRestart(args []string) error {
 		return err
 	}
 	rec.Pair(os.Stdout, pair)
-	fmt.Printf("  serve start-to-ready median %.2f s; target <= 5 s: %s\n", pair.MedianA(), verdict(pair.MedianA() <= 5))
+	fmt.Printf("  serve start-to-ready median %.2f s; target <= 5 s: %s\n", pair.MedianA(), abab.Verdict(pair.MedianA() <= 5))
 	rec.Record("restart target", map[string]any{"median_s": pair.MedianA(), "target_s": 5, "met": pair.MedianA() <= 5})
 	return nil
 }
@@ -610,9 +617,9 @@ func runFresh(args []string) error {
 	fmt.Printf("fresh: %d probes per round at %s events/s of background ingest; a probe publishes a new item's first click and waits until a query answers with it\n", *probes, abab.Fmt(*rate))
 	pair, err := abab.Run("freshness: serve, click published → item in a /v1/next answer (A) vs bare consumer receipt (B), median per round", "ms", c.rounds,
 		func(r int) (float64, error) {
-			dir := filepath.Join(c.work, fmt.Sprintf("fresh-a-%d", r))
+			dir, err := c.fromTemplate(fmt.Sprintf("fresh-a-%d", r))
 			defer os.RemoveAll(dir)
-			if err := svc.CopyDir(c.template, dir); err != nil {
+			if err != nil {
 				return 0, err
 			}
 			s, err := c.start(dir)
@@ -730,7 +737,7 @@ func runFresh(args []string) error {
 	fmt.Printf("  serve, all probes: %s\n  bare, all probes: %s\n", la, lb)
 	fmt.Printf("  background rate achieved: with serve %s events/s, with bare %s events/s (medians)\n", abab.Fmt(abab.Median(achieved["A"])), abab.Fmt(abab.Median(achieved["B"])))
 	fmt.Printf("  probes given up after %s (counted as %s): %d; serve consumer lag at the end of each round: %v messages\n", *limit, *limit, censored, lags)
-	fmt.Printf("  target: serve p99 <= 1 s at %s events/s: %s (p99 %.1f ms)\n", abab.Fmt(*rate), verdict(la.P99 <= 1e6), la.P99/1000)
+	fmt.Printf("  target: serve p99 <= 1 s at %s events/s: %s (p99 %.1f ms)\n", abab.Fmt(*rate), abab.Verdict(la.P99 <= 1e6), la.P99/1000)
 	rec.Record("freshness serve", la)
 	rec.Record("freshness bare", lb)
 	rec.Record("freshness background rate", achieved)
@@ -767,10 +774,3 @@ func flushSummary(m map[string]float64) string {
 
 // errLate says a probe's item did not show up within the limit.
 var errLate = errors.New("not seen within the limit")
-
-func verdict(ok bool) string {
-	if ok {
-		return "met"
-	}
-	return "MISSED"
-}

@@ -20,7 +20,6 @@ import (
 	"waymark/bench/bare"
 	"waymark/bench/synth"
 	"waymark/session"
-	"waymark/stream"
 )
 
 func main() {
@@ -94,7 +93,7 @@ func main() {
 		pprof.StopCPUProfile()
 	}
 	rec.Pair(os.Stdout, core)
-	fmt.Printf("  core learners: median %s events/s; target >= 1M events/s on one core: %s\n", abab.Fmt(core.MedianA()), verdict(core.MedianA() >= 1e6))
+	fmt.Printf("  core learners: median %s events/s; target >= 1M events/s on one core: %s\n", abab.Fmt(core.MedianA()), abab.Verdict(core.MedianA() >= 1e6))
 	rec.Record("core events/s", map[string]any{"median": core.MedianA(), "target": 1e6, "met": core.MedianA() >= 1e6})
 
 	knn, err := abab.Run("learn: core learners + session-kNN index (A) vs bare pair count (B)", "events/s", *rounds, pipeRun("blend", "vsknn"), bareRun)
@@ -119,16 +118,7 @@ func main() {
 
 func rate(n int, start time.Time) float64 { return float64(n) / time.Since(start).Seconds() }
 
-func verdict(ok bool) string {
-	if ok {
-		return "met"
-	}
-	return "MISSED"
-}
-
 func fail(err error) {
 	fmt.Fprintln(os.Stderr, "learn:", err)
 	os.Exit(1)
 }
-
-var _ = stream.KindClick

@@ -24,7 +24,6 @@ import (
 	"waymark/bench/synth"
 	"waymark/models"
 	"waymark/session"
-	"waymark/stream"
 )
 
 func main() {
@@ -100,7 +99,7 @@ func main() {
 			fail(err)
 		}
 		rec.Pair(os.Stdout, pair)
-		fmt.Printf("  target <= 32 B per pair: %s (median %.1f B)\n", verdict(pair.MedianA() <= 32), pair.MedianA())
+		fmt.Printf("  target <= 32 B per pair: %s (median %.1f B)\n", abab.Verdict(pair.MedianA() <= 32), pair.MedianA())
 		rec.Record("target pair "+spec, map[string]any{"median": pair.MedianA(), "target": 32, "met": pair.MedianA() <= 32})
 	}
 
@@ -158,7 +157,7 @@ func main() {
 		fail(err)
 	}
 	rec.Pair(os.Stdout, sess)
-	fmt.Printf("  target <= 512 B per session of 20 items: %s (median %.0f B)\n", verdict(sess.MedianA() <= 512), sess.MedianA())
+	fmt.Printf("  target <= 512 B per session of 20 items: %s (median %.0f B)\n", abab.Verdict(sess.MedianA() <= 512), sess.MedianA())
 	rec.Record("target session", map[string]any{"median": sess.MedianA(), "target": 512, "met": sess.MedianA() <= 512})
 }
 
@@ -185,16 +184,7 @@ func writeHeap(path string) {
 	}
 }
 
-func verdict(ok bool) string {
-	if ok {
-		return "met"
-	}
-	return "MISSED"
-}
-
 func fail(err error) {
 	fmt.Fprintln(os.Stderr, "memory:", err)
 	os.Exit(1)
 }
-
-var _ = stream.KindClick

@@ -105,11 +105,11 @@ func main() {
 				key := fmt.Sprintf("%s/%d", spec, L)
 				rec.Record(fmt.Sprintf("latency %s %d-click at %d", spec, L, size), lat)
 				if t, ok := targets[spec]; ok {
-					fmt.Printf("  target p99 <= %gµs: %s (median p99 %.1fµs)\n", t, verdict(pair.MedianA() <= t), pair.MedianA())
+					fmt.Printf("  target p99 <= %gµs: %s (median p99 %.1fµs)\n", t, abab.Verdict(pair.MedianA() <= t), pair.MedianA())
 				}
 				if prev, ok := p99[key]; ok {
 					g := pair.MedianA() / prev
-					fmt.Printf("  growth of p99 from the previous size: x%.2f (target within 2x: %s)\n", g, verdict(g <= 2))
+					fmt.Printf("  growth of p99 from the previous size: x%.2f (target within 2x: %s)\n", g, abab.Verdict(g <= 2))
 					rec.Record("growth "+key, map[string]any{"from": prev, "to": pair.MedianA(), "ratio": g, "met": g <= 2})
 				}
 				p99[key] = pair.MedianA()
@@ -178,13 +178,6 @@ func ints(s string) []int {
 		out = append(out, v)
 	}
 	return out
-}
-
-func verdict(ok bool) string {
-	if ok {
-		return "met"
-	}
-	return "MISSED"
 }
 
 func fail(err error) {

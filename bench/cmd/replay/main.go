@@ -105,7 +105,7 @@ func run(args []string) error {
 		return err
 	}
 	rec.Pair(os.Stdout, learn)
-	fmt.Printf("  learning-only replay, whole process: median %s events/s; target >= 1M events/s: %s\n", abab.Fmt(learn.MedianA()), verdict(learn.MedianA() >= 1e6))
+	fmt.Printf("  learning-only replay, whole process: median %s events/s; target >= 1M events/s: %s\n", abab.Fmt(learn.MedianA()), abab.Verdict(learn.MedianA() >= 1e6))
 	// The learning pass alone, in process: what the replay spends after
 	// reading the file.
 	var rates []float64
@@ -123,7 +123,7 @@ func run(args []string) error {
 		}
 		rates = append(rates, float64(len(evs))/time.Since(start).Seconds())
 	}
-	fmt.Printf("  learning pass in process (tracker + sr + pop + catalogue, decoded events): median %s events/s of %v; target >= 1M events/s: %s\n", abab.Fmt(abab.Median(rates)), fmtAll(rates), verdict(abab.Median(rates) >= 1e6))
+	fmt.Printf("  learning pass in process (tracker + sr + pop + catalogue, decoded events): median %s events/s of %v; target >= 1M events/s: %s\n", abab.Fmt(abab.Median(rates)), fmtAll(rates), abab.Verdict(abab.Median(rates) >= 1e6))
 	rec.Record("learning-only", map[string]any{"process_median": learn.MedianA(), "in_process": rates, "in_process_median": abab.Median(rates), "target": 1e6})
 	return nil
 }
@@ -198,11 +198,4 @@ func fmtAll(xs []float64) []string {
 		out[i] = abab.Fmt(x)
 	}
 	return out
-}
-
-func verdict(ok bool) string {
-	if ok {
-		return "met"
-	}
-	return "MISSED"
 }
