@@ -176,6 +176,8 @@ type blendScratch struct {
 	top   []Scored
 	items []ItemID
 	raw   []float64
+	// answered maps the answered items to their rows in features.
+	answered Scores
 }
 
 func (b *Blend) getScratch() *blendScratch {
@@ -284,20 +286,50 @@ func (b *Blend) contentBackoff(s *Signal, q *Query) (func(ItemID) float64, bool)
 	}, true
 }
 
-// features returns id's features from a query's scratch, indexed like
-// Signals.
-func (b *Blend) features(sc *blendScratch, id ItemID) []float64 {
+// features returns the answered items' features from a query's scratch,
+// one row per item indexed like Signals. A signal's table that was only
+// appended to (see [Scores.Append]) is walked once against the answers
+// instead of being indexed for k lookups: indexing costs a probe per
+// candidate, the walk a probe into a table of k.
+func (b *Blend) features(sc *blendScratch, items []Scored) [][]float64 {
 	nf := len(b.signals) + 1
-	fv := make([]float64, nf)
+	flat := make([]float64, nf*len(items))
+	fvs := make([][]float64, len(items))
+	for i := range fvs {
+		fvs[i] = flat[i*nf : (i+1)*nf : (i+1)*nf]
+	}
+	var pos *Scores // answered item → its row, built on first need
 	for si := range b.signals {
-		if mx := sc.norm[si]; mx > 0 {
-			fv[si] = sc.parts[si].Get(id) / mx
+		mx := sc.norm[si]
+		if mx <= 0 {
+			continue
+		}
+		part := &sc.parts[si]
+		if part.Indexed() {
+			for i, it := range items {
+				fvs[i][si] = part.Get(it.Item) / mx
+			}
+			continue
+		}
+		if pos == nil {
+			pos = &sc.answered
+			pos.Reset()
+			for i, it := range items {
+				pos.Set(it.Item, float64(i))
+			}
+		}
+		for _, e := range part.Entries() {
+			if i, ok := pos.Lookup(e.Item); ok {
+				fvs[int(i)][si] = e.Score / mx
+			}
 		}
 	}
 	if sc.popMx > 0 {
-		fv[nf-1] = b.pop.Count(id) / sc.popMx
+		for i, it := range items {
+			fvs[i][nf-1] = b.pop.Count(it.Item) / sc.popMx
+		}
 	}
-	return fv
+	return fvs
 }
 
 // absolute is a model whose scores are already on the blend's [0, 1]
@@ -342,11 +374,7 @@ func (b *Blend) Explain(q *Query, k int, skip func(ItemID) bool, bu Budget) Resu
 	defer b.scratch.Put(sc)
 	collab, skipped := b.blend(q, k, sc, skip, bu)
 	items := TopK(nil, &sc.out, k, func(id ItemID) bool { return !b.keep(id, skip) })
-	res := Result{Items: items, Fallback: !collab, Skipped: skipped, Features: make([][]float64, len(items))}
-	for i, it := range items {
-		res.Features[i] = b.features(sc, it.Item)
-	}
-	return res
+	return Result{Items: items, Fallback: !collab, Skipped: skipped, Features: b.features(sc, items)}
 }
 
 // ScoreRow is one caller-supplied candidate's blended score and features.

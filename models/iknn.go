@@ -142,9 +142,16 @@ func (m *IKNN) voters(q *Query, f func(a ItemID, pw float64)) {
 
 func (m *IKNN) Candidates(q *Query, out *Scores) {
 	shrink := m.shrinkTerm(q.Now)
+	// One voter's row holds distinct items: into an empty out the first
+	// voter appends; later voters add onto what earlier ones found.
+	add := out.Add
+	if out.Len() == 0 {
+		add = out.Append
+	}
 	m.voters(q, func(a ItemID, pw float64) {
 		sa := m.support.get(a)
-		m.covis.each(a, func(b ItemID, w float64) { out.Add(b, pw*m.simFrom(sa, b, w, shrink)) })
+		m.covis.each(a, func(b ItemID, w float64) { add(b, pw*m.simFrom(sa, b, w, shrink)) })
+		add = out.Add
 	})
 }
 

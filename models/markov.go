@@ -31,7 +31,7 @@ func (m *Markov) Candidates(q *Query, out *Scores) {
 	if !ok {
 		return
 	}
-	m.trans.each(last, func(b ItemID, w float64) { out.Add(b, w) })
+	m.trans.addRow(last, out)
 }
 
 func (m *Markov) ScoreItems(q *Query, items []ItemID, out []float64) {

@@ -83,6 +83,17 @@ func (t *pairTable) each(a ItemID, f func(b ItemID, w float64)) {
 	t.rows[a].each(f)
 }
 
+// addRow adds row a's pairs to out as candidates scored by their weights.
+// A row's items are distinct, so into an empty out they are appended
+// without lookups.
+func (t *pairTable) addRow(a ItemID, out *Scores) {
+	if out.Len() == 0 {
+		t.each(a, out.Append)
+		return
+	}
+	t.each(a, out.Add)
+}
+
 // size returns the number of pairs held.
 func (t *pairTable) size() int {
 	n := 0

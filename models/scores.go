@@ -7,10 +7,16 @@ package models
 // of a Go map's hashing, growth and iteration, and walking the candidates
 // is a slice walk. A zero Scores is ready to use; Reset empties it for the
 // next query without giving its memory back.
+//
+// A model whose candidates are distinct (one row's entries) appends them
+// with [Scores.Append] instead of adding: the table then indexes them only
+// if someone looks one up, so a blend's per-signal tables, which are only
+// walked, cost a slice append per candidate.
 type Scores struct {
-	ents  []Scored // candidates in first-insertion order
-	slots []int32  // index+1 into ents, 0 when empty; len is a power of two
-	shift uint8    // 32 - log2(len(slots))
+	ents    []Scored // candidates in first-insertion order
+	slots   []int32  // index+1 into ents, 0 when empty; len is a power of two
+	shift   uint8    // 32 - log2(len(slots))
+	indexed int      // ents[:indexed] are in slots; the rest were appended
 }
 
 // scoresMinSlots is the table size of a fresh Scores: room for a typical
@@ -59,10 +65,30 @@ func (s *Scores) find(id ItemID) int {
 	}
 }
 
-// Add adds v to id's score, inserting id with score v if absent.
-func (s *Scores) Add(id ItemID, v float64) {
+// Append adds id with score v, which the caller knows is absent: it
+// costs no lookup until one is made. Appending an id already present
+// breaks the table.
+func (s *Scores) Append(id ItemID, v float64) {
+	s.ents = append(s.ents, Scored{id, v})
+}
+
+// index brings the appended entries into the hash table.
+func (s *Scores) index() {
 	if s.slots == nil {
 		s.init(0)
+	}
+	for ; s.indexed < len(s.ents); s.indexed++ {
+		if 2*(s.indexed+1) > len(s.slots) {
+			s.grow()
+		}
+		s.slots[s.find(s.ents[s.indexed].Item)] = int32(s.indexed + 1)
+	}
+}
+
+// Add adds v to id's score, inserting id with score v if absent.
+func (s *Scores) Add(id ItemID, v float64) {
+	if s.indexed < len(s.ents) || s.slots == nil {
+		s.index()
 	}
 	i := s.find(id)
 	if e := s.slots[i]; e != 0 {
@@ -74,8 +100,8 @@ func (s *Scores) Add(id ItemID, v float64) {
 
 // Set sets id's score to v.
 func (s *Scores) Set(id ItemID, v float64) {
-	if s.slots == nil {
-		s.init(0)
+	if s.indexed < len(s.ents) || s.slots == nil {
+		s.index()
 	}
 	i := s.find(id)
 	if e := s.slots[i]; e != 0 {
@@ -88,16 +114,18 @@ func (s *Scores) Set(id ItemID, v float64) {
 func (s *Scores) insert(slot int, id ItemID, v float64) {
 	s.ents = append(s.ents, Scored{id, v})
 	s.slots[slot] = int32(len(s.ents))
+	s.indexed = len(s.ents)
 	if 2*len(s.ents) > len(s.slots) { // keep the load at most one half
 		s.grow()
 	}
 }
 
+// grow doubles the table and re-indexes the indexed entries.
 func (s *Scores) grow() {
 	size := 2 * len(s.slots)
 	s.slots = make([]int32, size)
 	s.shift = uint8(32 - log2(size))
-	for j, e := range s.ents {
+	for j, e := range s.ents[:s.indexed] {
 		s.slots[s.find(e.Item)] = int32(j + 1)
 	}
 }
@@ -112,6 +140,9 @@ func (s *Scores) Get(id ItemID) float64 {
 func (s *Scores) Lookup(id ItemID) (float64, bool) {
 	if len(s.ents) == 0 {
 		return 0, false
+	}
+	if s.indexed < len(s.ents) {
+		s.index()
 	}
 	if e := s.slots[s.find(id)]; e != 0 {
 		return s.ents[e-1].Score, true
@@ -141,12 +172,17 @@ func (s *Scores) Max() float64 {
 // query grew. They are cleared newest first: every slot on an entry's probe
 // path holds an older entry, so the path is intact when it is cleared.
 func (s *Scores) Reset() {
-	if len(s.ents)*8 < len(s.slots) {
-		for j := len(s.ents) - 1; j >= 0; j-- {
+	if s.indexed*8 < len(s.slots) {
+		for j := s.indexed - 1; j >= 0; j-- {
 			s.slots[s.find(s.ents[j].Item)] = 0
 		}
 	} else {
 		clear(s.slots)
 	}
 	s.ents = s.ents[:0]
+	s.indexed = 0
 }
+
+// Indexed reports whether every entry is in the hash table, so a lookup
+// costs nothing extra.
+func (s *Scores) Indexed() bool { return s.indexed == len(s.ents) }

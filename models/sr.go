@@ -44,7 +44,7 @@ func (m *SR) Candidates(q *Query, out *Scores) {
 	if !ok {
 		return
 	}
-	m.rules.each(last, func(b ItemID, w float64) { out.Add(b, w) })
+	m.rules.addRow(last, out)
 }
 
 func (m *SR) ScoreItems(q *Query, items []ItemID, out []float64) {
