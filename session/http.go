@@ -321,8 +321,14 @@ func parseBool(raw string) (bool, error) {
 }
 
 func (s *Server) postNext(w http.ResponseWriter, r *http.Request) {
-	var body nextBody
-	if !s.decodeBody(w, r, &body) {
+	raw, ok := s.readBody(w, r)
+	if !ok {
+		return
+	}
+	// The hand-written decoder takes the common bodies; anything it is
+	// not sure about goes to encoding/json, errors included.
+	body, ok := decodeNextFast(raw)
+	if !ok && !decodeJSONBody(w, raw, &body) {
 		return
 	}
 	res, aerr := s.doNext(body)
