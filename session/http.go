@@ -207,21 +207,37 @@ func (s *Server) readBody(w http.ResponseWriter, r *http.Request) ([]byte, bool)
 	return b, true
 }
 
+// decodeBody reads the body and decodes it into v, answering 413 or 400
+// itself on failure.
 func (s *Server) decodeBody(w http.ResponseWriter, r *http.Request, v any) bool {
 	b, ok := s.readBody(w, r)
 	if !ok {
 		return false
 	}
-	dec := json.NewDecoder(bytes.NewReader(b))
-	if err := dec.Decode(v); err != nil {
+	return decodeJSONBody(w, b, v)
+}
+
+// decodeJSONBody decodes b into v with unmarshalBody, answering 400 itself
+// on failure.
+func decodeJSONBody(w http.ResponseWriter, b []byte, v any) bool {
+	if err := unmarshalBody(b, v); err != nil {
 		writeError(w, http.StatusBadRequest, CodeInvalidJSON, "body: "+err.Error())
 		return false
 	}
-	if len(bytes.TrimSpace(b[dec.InputOffset():])) > 0 { // dec.More misses a trailing } or ]
-		writeError(w, http.StatusBadRequest, CodeInvalidJSON, "body: more than one JSON value")
-		return false
-	}
 	return true
+}
+
+// unmarshalBody decodes b, one JSON value with only whitespace after it,
+// into v with encoding/json.
+func unmarshalBody(b []byte, v any) error {
+	dec := json.NewDecoder(bytes.NewReader(b))
+	if err := dec.Decode(v); err != nil {
+		return err
+	}
+	if len(bytes.TrimSpace(b[dec.InputOffset():])) > 0 { // dec.More misses a trailing } or ]
+		return errors.New("more than one JSON value")
+	}
+	return nil
 }
 
 // parseK reads k from a query string value ("" gives the default).
@@ -305,8 +321,14 @@ func parseBool(raw string) (bool, error) {
 }
 
 func (s *Server) postNext(w http.ResponseWriter, r *http.Request) {
-	var body nextBody
-	if !s.decodeBody(w, r, &body) {
+	raw, ok := s.readBody(w, r)
+	if !ok {
+		return
+	}
+	// The hand-written decoder takes the common bodies; anything it is
+	// not sure about goes to encoding/json, errors included.
+	body, ok := decodeNextFast(raw)
+	if !ok && !decodeJSONBody(w, raw, &body) {
 		return
 	}
 	res, aerr := s.doNext(body)
