@@ -139,9 +139,21 @@ func main() {
 			abab.Fmt(float64(cp)), abab.Fmt(r.Rate), abab.Fmt(r.BareRate), r.P50, r.P99, r.Heap>>20, r.RSS>>20, r.BareRSS>>20, r.BarePairs, r.Pairs, r.Sessions)
 		rec.Record(fmt.Sprintf("growth at %d", cp), r)
 	}
-	fmt.Println("\n| learned events | ingest events/s | bare events/s | ratio | blend p50 µs | blend p99 µs | Go heap MB | RSS MB | bare RSS MB |")
-	fmt.Println("|---|---|---|---|---|---|---|---|---|")
+	if *noBare {
+		fmt.Println("\n| learned events | ingest events/s | blend p50 µs | blend p99 µs | Go heap MB | RSS MB | iknn pairs | sessions |")
+		fmt.Println("|---|---|---|---|---|---|---|---|")
+		for _, r := range rows {
+			fmt.Printf("| %s | %s | %.0f | %.0f | %d | %d | %d | %d |\n", abab.Fmt(float64(r.Events)), abab.Fmt(r.Rate), r.P50, r.P99, r.Heap>>20, r.RSS>>20, r.Pairs, r.Sessions)
+		}
+	}
+	if !*noBare {
+		fmt.Println("\n| learned events | ingest events/s | bare events/s | ratio | blend p50 µs | blend p99 µs | Go heap MB | RSS MB | bare RSS MB |")
+		fmt.Println("|---|---|---|---|---|---|---|---|---|")
+	}
 	for _, r := range rows {
+		if *noBare {
+			break
+		}
 		ratio := 0.0
 		if r.BareRate > 0 {
 			ratio = r.Rate / r.BareRate
