@@ -25,7 +25,7 @@ type PipelineOptions struct {
 	MaxItems int
 	// WalkRows answers single-model queries of sr and markov by walking
 	// the whole neighbour row, keeping no ranked lists (see
-	// models.Set.Recommender): slower queries, up to 4 bytes less a pair.
+	// models.Set.Recommender): slower queries, up to 16 bytes less a pair.
 	// serve's default blend keeps no lists either way.
 	WalkRows bool
 	Tracker  TrackerOptions
