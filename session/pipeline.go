@@ -270,7 +270,15 @@ func (p *Pipeline) NewQuery(items []string, now int64) models.Query {
 // SessionQuery returns a query from a tracked session's window; ok is false
 // when the session is not tracked (the query is then empty).
 func (p *Pipeline) SessionQuery(key string) (models.Query, bool) {
-	steps, no, ok := p.Tracker.Window(key, 0, nil)
+	return p.SessionQueryInto(key, nil)
+}
+
+// SessionQueryInto is SessionQuery with the window copied into buf, so a
+// caller that asks one query after another (replay) reuses one buffer
+// instead of allocating a window per query. The query's Session is buf's
+// array (grown when too small): it is valid until the caller reuses buf.
+func (p *Pipeline) SessionQueryInto(key string, buf []models.Step) (models.Query, bool) {
+	steps, no, ok := p.Tracker.Window(key, 0, buf)
 	return models.Query{Session: steps, Now: p.cp.Watermark, SessionNo: no}, ok
 }
 

@@ -205,7 +205,9 @@ func runStream(ctx context.Context, l *Log, o *Options, pl *plan, rep *Report) (
 			sc.Repeats++
 		default:
 			var ok bool
-			q, ok = p.SessionQuery(ev.Session)
+			// The previous query is done with: its window's array
+			// takes this one.
+			q, ok = p.SessionQueryInto(ev.Session, q.Session[:0])
 			if !ok {
 				sc.Untracked++
 				break
