@@ -46,6 +46,7 @@ type evaluator struct {
 	dict   *store.Dict
 	itemOf map[string]uint32 // log item by name
 	logOf  []int32           // log item by dictionary id, -1 if not in the log
+	dictOf []uint32          // dictionary id + 1 by log item, 0 until looked up and found
 
 	rel  []bool
 	pops []float64
@@ -62,6 +63,7 @@ func newEvaluator(l *Log, o *Options, items int) *evaluator {
 		names:    l.items,
 		popCount: make([]int64, len(l.items)),
 		itemOf:   make(map[string]uint32, len(l.items)),
+		dictOf:   make([]uint32, len(l.items)),
 		out:      make([]QueryScore, len(o.K)),
 	}
 	for i, s := range l.items {
@@ -92,6 +94,7 @@ func (e *evaluator) bind(p interface {
 	}
 	e.dict = dict
 	e.logOf = e.logOf[:0]
+	clear(e.dictOf)
 }
 
 // sync extends the dictionary-to-log map with ids interned since the last
@@ -107,9 +110,18 @@ func (e *evaluator) sync() {
 	}
 }
 
-// dictID returns the dictionary id of log item li, if interned.
+// dictID returns the dictionary id of log item li, if interned. An id once
+// found is kept: a dictionary never renumbers, and the lookup hashes the
+// item's name, which every query would otherwise pay for.
 func (e *evaluator) dictID(li uint32) (models.ItemID, bool) {
-	return e.dict.Lookup(e.names[li])
+	if id := e.dictOf[li]; id > 0 {
+		return id - 1, true
+	}
+	id, ok := e.dict.Lookup(e.names[li])
+	if ok {
+		e.dictOf[li] = id + 1
+	}
+	return id, ok
 }
 
 func (e *evaluator) logItem(id models.ItemID) int32 {
