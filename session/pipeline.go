@@ -174,6 +174,20 @@ func (p *Pipeline) Apply(ev *stream.Event) {
 		p.cp.Applied++
 		return
 	}
+	p.apply(ev, item, known)
+}
+
+// ApplyInterned is Apply for an event whose item the caller has looked up
+// already: item must be ev.Item's id in Dict. A replay knows the id of
+// every item it has applied once, and this spares it hashing the name
+// again for every click.
+func (p *Pipeline) ApplyInterned(ev *stream.Event, item models.ItemID) {
+	p.apply(ev, item, true)
+}
+
+// apply learns ev; item is its id when known, else ev.Item is interned
+// (the caller has checked that the dictionary has room).
+func (p *Pipeline) apply(ev *stream.Event, item models.ItemID, known bool) {
 	if p.cp.DecayRef == 0 {
 		p.setDecayRef(ev.TS)
 	} else if p.decay.NeedsRebase(ev.TS) {

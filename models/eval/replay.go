@@ -232,7 +232,11 @@ func runStream(ctx context.Context, l *Log, o *Options, pl *plan, rep *Report) (
 			sc.Queries++
 		}
 		if learn {
-			p.Apply(&ev)
+			if id, known := e.dictID(r.item); known {
+				p.ApplyInterned(&ev, id)
+			} else {
+				p.Apply(&ev)
+			}
 			e.learned(r.item)
 			sc.Learned++
 		} else {
