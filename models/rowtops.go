@@ -119,15 +119,17 @@ func (rt *rowTops) bump(a, b ItemID, w float64) {
 }
 
 // top appends the k best entries of row a for which skip is false, best
-// first, and reports whether that is the exact answer; when it is not (a
-// short row keeps no list, or the list ran out) dst comes back unchanged
-// and the caller walks the row.
+// first, and reports whether that is the exact answer; when it is not (the
+// list ran out) dst comes back unchanged and the caller walks the row. A
+// short row, which keeps no list, is ranked in place.
 func (rt *rowTops) top(a ItemID, k int, skip func(ItemID) bool, dst []Scored) ([]Scored, bool) {
 	if k <= 0 || int(a) >= len(rt.t.rows) || rt.t.rows[a].n == 0 {
 		return dst, true
 	}
 	if int(a) >= len(rt.lists) || len(rt.lists[a]) == 0 {
-		return dst, false
+		// A short row: ranked where it lies, which gives the walk's
+		// answer without filling a candidate table.
+		return topOfRow(dst, &rt.t.rows[a], k, skip), true
 	}
 	start := len(dst)
 	for _, e := range rt.lists[a] {
