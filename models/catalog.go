@@ -17,12 +17,15 @@ import (
 // recorded item. Query methods are safe for concurrent use with each other,
 // not with ObserveItem (the pipeline serialises the two).
 type Catalog struct {
-	state  []uint8    // per item: stateUnknown, stateAvailable or stateUnavailable
-	cats   [][]string // per item: normalised category paths
-	dirty  []ItemID
-	flag   []bool
-	decay  Decay
-	prefix string
+	state []uint8 // per item: stateUnknown, stateAvailable or stateUnavailable
+	// unavailable counts the items in stateUnavailable, so a query can
+	// tell at once that no candidate needs the availability check.
+	unavailable int
+	cats        [][]string // per item: normalised category paths
+	dirty       []ItemID
+	flag        []bool
+	decay       Decay
+	prefix      string
 }
 
 const (
@@ -62,9 +65,21 @@ func (c *Catalog) ObserveItem(info *ItemInfo) {
 	if c.state[info.Item] == st && slices.Equal(c.cats[info.Item], cats) {
 		return
 	}
-	c.state[info.Item] = st
+	c.setState(info.Item, st)
 	c.cats[info.Item] = cats
 	c.markDirty(info.Item)
+}
+
+// setState sets id's state, keeping the count of unavailable items; id's
+// entry must exist (grow).
+func (c *Catalog) setState(id ItemID, st uint8) {
+	if c.state[id] == stateUnavailable {
+		c.unavailable--
+	}
+	if st == stateUnavailable {
+		c.unavailable++
+	}
+	c.state[id] = st
 }
 
 func (c *Catalog) grow(id ItemID) {
@@ -89,6 +104,10 @@ func (c *Catalog) markDirty(id ItemID) {
 func (c *Catalog) Available(id ItemID) bool {
 	return int(id) >= len(c.state) || c.state[id] != stateUnavailable
 }
+
+// AllAvailable reports whether every item is available, so a caller may
+// skip asking Available of each.
+func (c *Catalog) AllAvailable() bool { return c.unavailable == 0 }
 
 // Known reports whether a catalogue record for id has been seen.
 func (c *Catalog) Known(id ItemID) bool {
@@ -173,7 +192,7 @@ func (c *Catalog) Load(key, val []byte) error {
 		rest = rest[w+int(n):]
 	}
 	c.grow(id)
-	c.state[id] = val[0]
+	c.setState(id, val[0])
 	c.cats[id] = cats
 	return nil
 }

@@ -22,8 +22,7 @@ func (m *Markov) Observe(o *Observation) {
 		return
 	}
 	a := o.Window[len(o.Window)-1].Item
-	m.trans.add(a, o.Item, o.Weight)
-	m.bump(a, o.Item)
+	m.bump(a, o.Item, m.trans.add(a, o.Item, o.Weight))
 }
 
 func (m *Markov) Candidates(q *Query, out *Scores) {

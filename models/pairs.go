@@ -41,16 +41,19 @@ func (t *pairTable) row(a ItemID) *pairRow {
 	return &t.rows[a]
 }
 
-// add adds w to the pair a→b.
-func (t *pairTable) add(a, b ItemID, w float64) {
-	t.addTo(t.row(a), a, b, w)
+// add adds w to the pair a→b and returns the pair's new weight (which a
+// prune that drops the pair leaves as it was: see addTo).
+func (t *pairTable) add(a, b ItemID, w float64) float64 {
+	return t.addTo(t.row(a), a, b, w)
 }
 
-// addTo adds w to the pair a→b; r is row a. Callers that update one row
-// many times look it up once.
-func (t *pairTable) addTo(r *pairRow, a, b ItemID, w float64) {
+// addTo adds w to the pair a→b and returns the pair's new weight; r is row
+// a. Callers that update one row many times look it up once. When the add
+// makes the row prune, the pair may be among those cut: the weight
+// returned is then the one it had before the cut.
+func (t *pairTable) addTo(r *pairRow, a, b ItemID, w float64) float64 {
 	n := r.n
-	r.addPooled(b, w, &t.pool)
+	nw := r.addPooled(b, w, &t.pool)
 	if !r.dirty {
 		r.dirty = true
 		t.dirty = append(t.dirty, a)
@@ -61,6 +64,7 @@ func (t *pairTable) addTo(r *pairRow, a, b ItemID, w float64) {
 	if t.cap > 0 && int(r.n) > 2*t.cap {
 		t.scratch = prune(r, t.cap, t.scratch, &t.pool)
 	}
+	return nw
 }
 
 // grow makes rows for every id up to max, so row pointers taken after it

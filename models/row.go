@@ -27,9 +27,9 @@ func rowHash(k uint32, mask uint32) uint32 { return (k * 0x9E3779B1) & mask }
 // add adds w to k's weight.
 func (r *row) add(k uint32, w float64) { r.addPooled(k, w, nil) }
 
-// addPooled adds w to k's weight, taking a larger slot array from pool
-// when the row must grow (pool may be nil).
-func (r *row) addPooled(k uint32, w float64, pool *slotPool) {
+// addPooled adds w to k's weight and returns the new weight, taking a
+// larger slot array from pool when the row must grow (pool may be nil).
+func (r *row) addPooled(k uint32, w float64, pool *slotPool) float64 {
 	if len(r.slots) == 0 {
 		r.slots = pool.get(4)
 	} else if !fits(int(r.n)+1, len(r.slots)) {
@@ -41,11 +41,11 @@ func (r *row) addPooled(k uint32, w float64, pool *slotPool) {
 		switch s.key {
 		case k + 1:
 			s.val += w
-			return
+			return s.val
 		case 0:
 			s.key, s.val = k+1, w
 			r.n++
-			return
+			return w
 		}
 	}
 }

@@ -34,8 +34,19 @@ func TestRowTopsAgainstWalk(t *testing.T) {
 			rng := rand.New(rand.NewPCG(21, uint64(tt.items)))
 			m := tt.build()
 			m.keepTops()
+			tops := func(m model) *rowTops {
+				switch x := m.(type) {
+				case *SR:
+					return x.tops
+				case *Markov:
+					return x.tops
+				}
+				t.Fatalf("no lists in %T", m)
+				return nil
+			}
 			check := func(m model, label string) {
 				t.Helper()
+				invariant(t, tops(m), label)
 				for range 300 {
 					last := ItemID(rng.IntN(tt.items + 5)) // some never clicked
 					q := &Query{Session: []Step{{Item: last}}}
@@ -94,13 +105,7 @@ func TestRowTopsAgainstWalk(t *testing.T) {
 			check(n, "after Flush and Load")
 			// Lists answer every query of k = 5 on a long row; a test where
 			// they never did would compare nothing.
-			var rt *rowTops
-			switch x := n.(type) {
-			case *SR:
-				rt = x.tops
-			case *Markov:
-				rt = x.tops
-			}
+			rt := tops(n)
 			long, answered := 0, 0
 			for a := range ItemID(tt.items) {
 				if int(a) >= len(rt.t.rows) || int(rt.t.rows[a].n) <= rt.size {
@@ -115,5 +120,33 @@ func TestRowTopsAgainstWalk(t *testing.T) {
 				t.Errorf("lists answered %d of %d queries on long rows", answered, long)
 			}
 		})
+	}
+}
+
+// invariant checks what rowTops promises beyond the answers: every long
+// row keeps a list of exactly its size heaviest entries in rank order, each
+// listed weight equal to the row's own, and no short row keeps one. A
+// stale weight could hide from the answers (a listed entry's rank moving
+// without its weight crossing a neighbour's), so it is checked directly.
+func invariant(t *testing.T, rt *rowTops, label string) {
+	t.Helper()
+	for a := range rt.t.rows {
+		r := &rt.t.rows[a]
+		var listed []Scored
+		if a < len(rt.lists) {
+			listed = rt.lists[a]
+		}
+		if int(r.n) <= rt.size {
+			if len(listed) != 0 {
+				t.Fatalf("%s: row %d of %d entries keeps a list of %d", label, a, r.n, len(listed))
+			}
+			continue
+		}
+		var all []Scored
+		r.each(func(b ItemID, w float64) { all = append(all, Scored{b, w}) })
+		slices.SortFunc(all, func(x, y Scored) int { return cmpScore(x.Score, y.Score, x.Item, y.Item) })
+		if want := all[:rt.size]; !slices.Equal(listed, want) {
+			t.Fatalf("%s: row %d: list %v, the row's heaviest %v", label, a, listed, want)
+		}
 	}
 }

@@ -124,8 +124,14 @@ type availRecommender struct {
 }
 
 func (r *availRecommender) Recommend(q *Query, k int, skip func(ItemID) bool, dst []Scored) []Scored {
-	drop := func(id ItemID) bool {
-		return !r.cat.Available(id) || (skip != nil && skip(id))
+	// With every item available, drop is skip itself: no closure to
+	// allocate and no availability check per candidate (a replay of a
+	// click log without catalogue records never marks one unavailable).
+	drop := skip
+	if !r.cat.AllAvailable() {
+		drop = func(id ItemID) bool {
+			return !r.cat.Available(id) || (skip != nil && skip(id))
+		}
 	}
 	if r.top != nil {
 		if out, ok := r.top.rankTop(q, k, drop, dst); ok {

@@ -34,8 +34,7 @@ func (m *SR) Observe(o *Observation) {
 		if a == o.Item {
 			continue
 		}
-		m.rules.add(a, o.Item, o.Weight/float64(gap))
-		m.bump(a, o.Item)
+		m.bump(a, o.Item, m.rules.add(a, o.Item, o.Weight/float64(gap)))
 	}
 }
 

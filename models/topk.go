@@ -43,35 +43,72 @@ func topOf(dst []Scored, cands []Scored, k int, skip func(ItemID) bool) []Scored
 	if k <= 0 {
 		return dst
 	}
-	start := len(dst)
-	// h is a min-heap by rank: h[0] is the worst of the best k so far.
-	// Once it is full, floor is h[0]'s score: a candidate scoring below it
-	// is out after one float comparison, which is the common case.
-	h := dst
-	full, floor := false, 0.0
+	t := topSel{h: dst, start: len(dst), k: k}
 	for _, c := range cands {
-		if c.Score <= 0 || (full && c.Score < floor) {
+		// Once the heap is full, a candidate scoring below its worst is
+		// out after one float comparison, which is the common case.
+		if c.Score <= 0 || (t.full && c.Score < t.floor) {
 			continue
 		}
-		// Ask skip only of a candidate that would enter: most do not.
-		if (full && !better(c, h[start])) || (skip != nil && skip(c.Item)) {
-			continue
-		}
-		if !full {
-			h = append(h, c)
-			topSiftUp(h[start:], len(h)-start-1)
-			if full = len(h)-start == k; full {
-				floor = h[start].Score
-			}
-			continue
-		}
-		h[start] = c
-		topSiftDown(h[start:], 0)
-		floor = h[start].Score
+		t.offer(c, skip)
 	}
-	part := h[start:]
-	slices.SortFunc(part, func(x, y Scored) int { return cmpScore(x.Score, y.Score, x.Item, y.Item) })
-	return h
+	return t.sorted()
+}
+
+// topOfRow is topOf over the entries of a row, read in place: a model
+// whose scores are one row's weights (sr, markov) ranks a short row
+// without copying it into a candidate table first. The answer is topOf's
+// over the same entries: the ranking is a total order, so it does not
+// depend on the order entries are visited in.
+func topOfRow(dst []Scored, r *row, k int, skip func(ItemID) bool) []Scored {
+	if k <= 0 {
+		return dst
+	}
+	t := topSel{h: dst, start: len(dst), k: k}
+	for _, sl := range r.slots {
+		if sl.key == 0 || sl.val <= 0 || (t.full && sl.val < t.floor) {
+			continue
+		}
+		t.offer(Scored{sl.key - 1, sl.val}, skip)
+	}
+	return t.sorted()
+}
+
+// topSel selects the k best candidates offered: h[start:] is a min-heap
+// by rank, h[start] the worst of the best k so far; once it is full, floor
+// is that worst score.
+type topSel struct {
+	h     []Scored
+	start int
+	k     int
+	full  bool
+	floor float64
+}
+
+// offer considers c, whose score is above 0 and, when the heap is full,
+// not below floor.
+func (t *topSel) offer(c Scored, skip func(ItemID) bool) {
+	// Ask skip only of a candidate that would enter: most do not.
+	if (t.full && !better(c, t.h[t.start])) || (skip != nil && skip(c.Item)) {
+		return
+	}
+	if !t.full {
+		t.h = append(t.h, c)
+		topSiftUp(t.h[t.start:], len(t.h)-t.start-1)
+		if t.full = len(t.h)-t.start == t.k; t.full {
+			t.floor = t.h[t.start].Score
+		}
+		return
+	}
+	t.h[t.start] = c
+	topSiftDown(t.h[t.start:], 0)
+	t.floor = t.h[t.start].Score
+}
+
+// sorted returns the selection best first, after whatever h held before.
+func (t *topSel) sorted() []Scored {
+	slices.SortFunc(t.h[t.start:], func(x, y Scored) int { return cmpScore(x.Score, y.Score, x.Item, y.Item) })
+	return t.h
 }
 
 func topSiftUp(h []Scored, i int) {

@@ -25,7 +25,7 @@ type PipelineOptions struct {
 	MaxItems int
 	// WalkRows answers single-model queries of sr and markov by walking
 	// the whole neighbour row, keeping no ranked lists (see
-	// models.Set.Recommender): slower queries, up to 4 bytes less a pair.
+	// models.Set.Recommender): slower queries, up to 16 bytes less a pair.
 	// serve's default blend keeps no lists either way.
 	WalkRows bool
 	Tracker  TrackerOptions
@@ -174,6 +174,20 @@ func (p *Pipeline) Apply(ev *stream.Event) {
 		p.cp.Applied++
 		return
 	}
+	p.apply(ev, item, known)
+}
+
+// ApplyInterned is Apply for an event whose item the caller has looked up
+// already: item must be ev.Item's id in Dict. A replay knows the id of
+// every item it has applied once, and this spares it hashing the name
+// again for every click.
+func (p *Pipeline) ApplyInterned(ev *stream.Event, item models.ItemID) {
+	p.apply(ev, item, true)
+}
+
+// apply learns ev; item is its id when known, else ev.Item is interned
+// (the caller has checked that the dictionary has room).
+func (p *Pipeline) apply(ev *stream.Event, item models.ItemID, known bool) {
 	if p.cp.DecayRef == 0 {
 		p.setDecayRef(ev.TS)
 	} else if p.decay.NeedsRebase(ev.TS) {
@@ -270,7 +284,15 @@ func (p *Pipeline) NewQuery(items []string, now int64) models.Query {
 // SessionQuery returns a query from a tracked session's window; ok is false
 // when the session is not tracked (the query is then empty).
 func (p *Pipeline) SessionQuery(key string) (models.Query, bool) {
-	steps, no, ok := p.Tracker.Window(key, 0, nil)
+	return p.SessionQueryInto(key, nil)
+}
+
+// SessionQueryInto is SessionQuery with the window copied into buf, so a
+// caller that asks one query after another (replay) reuses one buffer
+// instead of allocating a window per query. The query's Session is buf's
+// array (grown when too small): it is valid until the caller reuses buf.
+func (p *Pipeline) SessionQueryInto(key string, buf []models.Step) (models.Query, bool) {
+	steps, no, ok := p.Tracker.Window(key, 0, buf)
 	return models.Query{Session: steps, Now: p.cp.Watermark, SessionNo: no}, ok
 }
 

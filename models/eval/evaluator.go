@@ -46,10 +46,12 @@ type evaluator struct {
 	dict   *store.Dict
 	itemOf map[string]uint32 // log item by name
 	logOf  []int32           // log item by dictionary id, -1 if not in the log
+	dictOf []uint32          // dictionary id + 1 by log item, 0 until looked up and found
 
 	rel  []bool
 	pops []float64
 	out  []QueryScore
+	ans  []int32 // score's answers, between ask and tally
 }
 
 func newEvaluator(l *Log, o *Options, items int) *evaluator {
@@ -62,6 +64,7 @@ func newEvaluator(l *Log, o *Options, items int) *evaluator {
 		names:    l.items,
 		popCount: make([]int64, len(l.items)),
 		itemOf:   make(map[string]uint32, len(l.items)),
+		dictOf:   make([]uint32, len(l.items)),
 		out:      make([]QueryScore, len(o.K)),
 	}
 	for i, s := range l.items {
@@ -92,6 +95,7 @@ func (e *evaluator) bind(p interface {
 	}
 	e.dict = dict
 	e.logOf = e.logOf[:0]
+	clear(e.dictOf)
 }
 
 // sync extends the dictionary-to-log map with ids interned since the last
@@ -107,9 +111,18 @@ func (e *evaluator) sync() {
 	}
 }
 
-// dictID returns the dictionary id of log item li, if interned.
+// dictID returns the dictionary id of log item li, if interned. An id once
+// found is kept: a dictionary never renumbers, and the lookup hashes the
+// item's name, which every query would otherwise pay for.
 func (e *evaluator) dictID(li uint32) (models.ItemID, bool) {
-	return e.dict.Lookup(e.names[li])
+	if id := e.dictOf[li]; id > 0 {
+		return id - 1, true
+	}
+	id, ok := e.dict.Lookup(e.names[li])
+	if ok {
+		e.dictOf[li] = id + 1
+	}
+	return id, ok
 }
 
 func (e *evaluator) logItem(id models.ItemID) int32 {
@@ -133,12 +146,20 @@ func (e *evaluator) resetCounts() {
 	e.maxPop = 0
 }
 
-// score asks every model q. rel tells a relevant log item, nRel counts
-// them; next is the clicked item that decides coldness; pos is the number
-// of clicks before the query.
+// score asks every model q and scores the answers. rel tells a relevant
+// log item, nRel counts them; next is the clicked item that decides
+// coldness; pos is the number of clicks before the query.
 func (e *evaluator) score(q *models.Query, skip func(models.ItemID) bool, rel func(li uint32) bool, nRel int, next uint32, pos int) {
-	cold := e.popCount[next] < e.cold
-	pg := min(pos, len(positionLabels)) - 1
+	e.ans = e.ask(q, skip, e.ans[:0])
+	e.tally(e.ans, rel, nRel, next, pos)
+}
+
+// ask asks every model q and appends the answers to dst as log items: for
+// each model in turn the length of its list, then its items, -1 for an item
+// not in the log. It is the half of scoring that reads the models and the
+// dictionary; tally, the other half, reads only what ask wrote, so the two
+// may run on different goroutines (tallier).
+func (e *evaluator) ask(q *models.Query, skip func(models.ItemID) bool, dst []int32) []int32 {
 	for _, m := range e.ms {
 		t0 := time.Now()
 		m.buf = m.rec.Recommend(q, e.maxK, skip, m.buf[:0])
@@ -147,9 +168,25 @@ func (e *evaluator) score(q *models.Query, skip func(models.ItemID) bool, rel fu
 		if len(list) > e.maxK {
 			list = list[:e.maxK]
 		}
+		dst = append(dst, int32(len(list)))
+		for _, s := range list {
+			dst = append(dst, e.logItem(s.Item))
+		}
+	}
+	return dst
+}
+
+// tally scores one query's answers as ask wrote them at the front of ans
+// and returns the rest of ans. Its arguments are score's.
+func (e *evaluator) tally(ans []int32, rel func(li uint32) bool, nRel int, next uint32, pos int) []int32 {
+	cold := e.popCount[next] < e.cold
+	pg := min(pos, len(positionLabels)) - 1
+	for _, m := range e.ms {
+		n := int(ans[0])
+		list := ans[1 : 1+n]
+		ans = ans[1+n:]
 		e.rel, e.pops = e.rel[:0], e.pops[:0]
-		for rank, s := range list {
-			li := e.logItem(s.Item)
+		for rank, li := range list {
 			isRel := false
 			popv := 0.0
 			if li >= 0 {
@@ -194,6 +231,7 @@ func (e *evaluator) score(q *models.Query, skip func(models.ItemID) bool, rel fu
 		}
 		m.rr = append(m.rr, float32(e.out[len(e.out)-1].RR))
 	}
+	return ans
 }
 
 func addScore(dst *QueryScore, s QueryScore) {

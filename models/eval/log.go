@@ -156,52 +156,70 @@ type itemTaker interface {
 	TakeItems() []stream.ItemRecord
 }
 
+// read adds every event of src. The source is read on a goroutine of its
+// own (prefetcher) while this one checks order and interns, in the order
+// read, so the log is the one a single goroutine would build.
 func (b *builder) read(ctx context.Context, src Source, opts LoadOptions) error {
 	s := SourceSummary{Name: src.Name}
-	taker, _ := src.Reader.(itemTaker)
 	var prev int64
-	for n := 0; ; n++ {
-		if n%65536 == 0 {
-			if err := ctx.Err(); err != nil {
-				return err
-			}
+	pf := startPrefetch(src.Reader)
+	defer pf.stop()
+	bad := func(err error) {
+		s.BadRecords++
+		if opts.OnBadRecord != nil {
+			opts.OnBadRecord(src.Name, err)
 		}
-		ev, err := src.Reader.Next()
+	}
+	for {
+		if err := ctx.Err(); err != nil {
+			return err
+		}
+		f, ok := pf.next()
+		if !ok {
+			break // cannot happen: the last batch carries the source's end
+		}
+		notes := f.notes
+		for i := range f.evs {
+			for len(notes) > 0 && notes[0].at == i && !notes[0].itemsOf {
+				bad(notes[0].bad)
+				notes = notes[1:]
+			}
+			ev := &f.evs[i]
+			if ev.TS < prev {
+				if opts.StrictOrder {
+					where := ""
+					if len(f.lines) > 0 && f.lines[i] > 0 {
+						where = fmt.Sprintf(" line %d", f.lines[i])
+					}
+					return fmt.Errorf("%w: %s%s: event time %s is before the previous event's %s (sort the input, or allow sorting in memory)",
+						ErrOutOfOrder, src.Name, where, fmtTS(ev.TS), fmtTS(prev))
+				}
+				s.OutOfOrder++
+			}
+			prev = max(prev, ev.TS)
+			if len(notes) > 0 && notes[0].at == i && notes[0].itemsOf {
+				for _, r := range notes[0].items {
+					if opts.Catalog {
+						b.l.catalog = append(b.l.catalog, catEntry{ts: ev.TS, rec: r})
+						s.Catalog++
+					}
+				}
+				notes = notes[1:]
+			}
+			b.add(ev)
+			s.Events++
+		}
+		for _, n := range notes { // bad records after the batch's last event
+			bad(n.bad)
+		}
+		err := f.err
+		pf.recycle(f)
 		if errors.Is(err, io.EOF) {
 			break
 		}
 		if err != nil {
-			if !isBadRecord(err) {
-				return fmt.Errorf("read %s: %w", src.Name, err)
-			}
-			s.BadRecords++
-			if opts.OnBadRecord != nil {
-				opts.OnBadRecord(src.Name, err)
-			}
-			continue
+			return fmt.Errorf("read %s: %w", src.Name, err)
 		}
-		if ev.TS < prev {
-			if opts.StrictOrder {
-				where := ""
-				if l, ok := src.Reader.(liner); ok && l.Line() > 0 {
-					where = fmt.Sprintf(" line %d", l.Line())
-				}
-				return fmt.Errorf("%w: %s%s: event time %s is before the previous event's %s (sort the input, or allow sorting in memory)",
-					ErrOutOfOrder, src.Name, where, fmtTS(ev.TS), fmtTS(prev))
-			}
-			s.OutOfOrder++
-		}
-		prev = max(prev, ev.TS)
-		if taker != nil {
-			for _, r := range taker.TakeItems() {
-				if opts.Catalog {
-					b.l.catalog = append(b.l.catalog, catEntry{ts: ev.TS, rec: r})
-					s.Catalog++
-				}
-			}
-		}
-		b.add(&ev)
-		s.Events++
 	}
 	b.addSource(s)
 	return nil

@@ -160,6 +160,9 @@ func runStream(ctx context.Context, l *Log, o *Options, pl *plan, rep *Report) (
 	if o.Target == TargetRest {
 		rest = newRestIndex(l, pl)
 	}
+	// Scoring runs on a goroutine of its own from here to tl.wait.
+	tl := startTallier(e, rest)
+	defer tl.wait()
 	skipSession := o.Exclude == ExcludeSession
 	sc := &rep.Scoring
 	cat := catalogCursor{l: l}
@@ -205,7 +208,9 @@ func runStream(ctx context.Context, l *Log, o *Options, pl *plan, rep *Report) (
 			sc.Repeats++
 		default:
 			var ok bool
-			q, ok = p.SessionQuery(ev.Session)
+			// The previous query is done with: its window's array
+			// takes this one.
+			q, ok = p.SessionQueryInto(ev.Session, q.Session[:0])
 			if !ok {
 				sc.Untracked++
 				break
@@ -219,19 +224,16 @@ func runStream(ctx context.Context, l *Log, o *Options, pl *plan, rep *Report) (
 					}
 				}
 			}
-			var isRel func(uint32) bool
-			nRel := 1
-			if rest != nil {
-				isRel, nRel = rest.at(i, in)
-			} else {
-				isRel = func(li uint32) bool { return li == target }
-			}
-			e.score(&q, inSession, isRel, nRel, target, int(s.pos))
+			tl.query(&q, inSession, i, in, target, int(s.pos))
 			sc.Queries++
 		}
 		if learn {
-			p.Apply(&ev)
-			e.learned(r.item)
+			if id, known := e.dictID(r.item); known {
+				p.ApplyInterned(&ev, id)
+			} else {
+				p.Apply(&ev)
+			}
+			tl.learned(r.item)
 			sc.Learned++
 		} else {
 			p.Track(&ev)
@@ -241,6 +243,7 @@ func runStream(ctx context.Context, l *Log, o *Options, pl *plan, rep *Report) (
 			s.last = int64(r.item)
 		}
 	}
+	tl.wait()
 	if o.Progress != nil {
 		o.Progress(total, total)
 	}

@@ -46,7 +46,7 @@ func main() {
 		o := session.DefaultPipelineOptions()
 		o.Models = []string{spec}
 		// Pairs as serve's default blend keeps them: a single-model
-		// pipeline would also keep ranked lists of long rows (up to 4 B a
+		// pipeline would also keep ranked lists of long rows (up to 16 B a
 		// pair more), which the blend never uses.
 		o.WalkRows = true
 		p, err := session.NewPipeline(o)
