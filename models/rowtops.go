@@ -14,14 +14,15 @@ import (
 // the kept entries run out before k answers and the row has more, the
 // query falls back to the walk.
 //
-// Only rows longer than the list size keep a list (a short row is walked:
-// it is cheap, and its list would cost up to 16 bytes a pair). The
+// Only rows longer than the list size keep a list (a short row is ranked
+// where it lies: it is cheap, and its list would cost up to 16 bytes a
+// pair). The
 // invariant is that a long row's list holds its size heaviest entries, and
 // that each listed weight equals the row's weight for that entry. Keeping
 // the weights beside the ids is what lets top read the list front to back
 // and bump compare against it without a hash probe into the row (a cache
-// miss each: they were a third of a replay's query and learning time);
-// the price is every change of a listed pair's weight must reach the list.
+// miss each: 0.5 s of a 4.3 s replay of 1M clicks); the price is that
+// every change of a listed pair's weight must reach the list.
 // The paths that change a row's weights are:
 //   - add (Observe): weights only grow between rescales, so a grown entry
 //     can only move up, and an entry outside the list enters only by

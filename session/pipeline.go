@@ -83,6 +83,11 @@ type Pipeline struct {
 	cp       store.Checkpoint
 	buf      []models.Step
 	obs      models.Observation
+	// before and asked serve ApplyAsked: the window of a session that
+	// timed out, and the query handed to the caller (a local would escape
+	// through the callback and cost an allocation per click).
+	before []models.Step
+	asked  models.Query
 }
 
 // NewPipeline builds the models named in opts, with no state.
@@ -174,7 +179,7 @@ func (p *Pipeline) Apply(ev *stream.Event) {
 		p.cp.Applied++
 		return
 	}
-	p.apply(ev, item, known)
+	p.apply(ev, item, known, nil)
 }
 
 // ApplyInterned is Apply for an event whose item the caller has looked up
@@ -182,23 +187,65 @@ func (p *Pipeline) Apply(ev *stream.Event) {
 // every item it has applied once, and this spares it hashing the name
 // again for every click.
 func (p *Pipeline) ApplyInterned(ev *stream.Event, item models.ItemID) {
-	p.apply(ev, item, true)
+	p.apply(ev, item, true, nil)
+}
+
+// ApplyAsked is Apply for a caller that asks a query of the click's
+// session just before each click is learned (replay): ask gets the query
+// SessionQuery would have returned right before the click (tracked false
+// when the session was not tracked) and runs before any model learns the
+// click. The tracker finds the session once for both. item is ev.Item's
+// id when known is true (as for ApplyInterned). The query's Session is
+// valid only during ask; ask must not call the pipeline.
+func (p *Pipeline) ApplyAsked(ev *stream.Event, item models.ItemID, known bool, ask func(q *models.Query, tracked bool)) {
+	if !known {
+		item, known = p.Dict.Lookup(ev.Item)
+		if !known && p.Dict.Len() >= p.opts.MaxItems {
+			// Nothing is learned: the query sees the tracker as it is.
+			var ok bool
+			p.asked, ok = p.SessionQueryInto(ev.Session, p.before[:0])
+			p.before = p.asked.Session[:0]
+			ask(&p.asked, ok)
+			p.cp.Overflow++
+			p.cp.Applied++
+			return
+		}
+	}
+	p.apply(ev, item, known, ask)
 }
 
 // apply learns ev; item is its id when known, else ev.Item is interned
-// (the caller has checked that the dictionary has room).
-func (p *Pipeline) apply(ev *stream.Event, item models.ItemID, known bool) {
+// (the caller has checked that the dictionary has room). A non-nil ask is
+// asked the session's query after the tracker has seen the click and
+// before the models learn it (ApplyAsked).
+func (p *Pipeline) apply(ev *stream.Event, item models.ItemID, known bool, ask func(*models.Query, bool)) {
+	if !known {
+		item, _ = p.Dict.Intern(ev.Item)
+	}
+	p.cp.Touches++
+	var c Click
+	if ask == nil {
+		c = p.Tracker.Observe(ev.Session, item, ev.TS, p.cp.Touches, p.nextSession, p.buf)
+	} else {
+		var b Before
+		c, b = p.Tracker.ObserveBefore(ev.Session, item, ev.TS, p.cp.Touches, p.nextSession, p.buf, p.before)
+		if b.Tracked && len(b.Steps) > 0 && len(c.Window) == 0 {
+			p.before = b.Steps[:0] // the timed-out window's buffer, kept
+		}
+		// The watermark is still the one before the click: the
+		// counters move after the models learn it.
+		p.asked = models.Query{Session: b.Steps, Now: p.cp.Watermark, SessionNo: b.No}
+		ask(&p.asked, b.Tracked)
+		p.asked.Session = nil
+	}
+	p.buf = c.Window[:0]
+	// The decay reference moves after the query, which must see the
+	// models as they were; the tracker never reads it.
 	if p.cp.DecayRef == 0 {
 		p.setDecayRef(ev.TS)
 	} else if p.decay.NeedsRebase(ev.TS) {
 		p.rebase(ev.TS)
 	}
-	if !known {
-		item, _ = p.Dict.Intern(ev.Item)
-	}
-	p.cp.Touches++
-	c := p.Tracker.Observe(ev.Session, item, ev.TS, p.cp.Touches, p.nextSession, p.buf)
-	p.buf = c.Window[:0]
 	// The observation lives in the pipeline: passed to the learners
 	// through an interface, a local would escape and cost an allocation
 	// per event.

@@ -186,13 +186,46 @@ type Click struct {
 // window before it. touch is the caller's update counter (it orders the
 // LRU), nextNo numbers a new session instance. buf is reused for the window.
 func (t *Tracker) Observe(key string, item models.ItemID, ts int64, touch uint64, nextNo func() uint64, buf []models.Step) Click {
+	c, _ := t.observe(key, item, ts, touch, nextNo, buf, nil, false)
+	return c
+}
+
+// Before is session key's state just before a click, as Window (with no
+// timeout check) would have reported it.
+type Before struct {
+	Tracked bool
+	No      uint64
+	// Steps is the window: the click's Click.Window itself, unless the
+	// click started a new instance after the timeout, when it is a copy
+	// of the old window in the buffer given to ObserveBefore.
+	Steps []models.Step
+}
+
+// ObserveBefore is Observe that also reports the session as it was before
+// the click (see Before), so a caller that asks a query of the session
+// right before each click (replay) finds the entry once instead of twice.
+// before is the buffer for the old window of a session that timed out.
+func (t *Tracker) ObserveBefore(key string, item models.ItemID, ts int64, touch uint64, nextNo func() uint64, buf, before []models.Step) (Click, Before) {
+	return t.observe(key, item, ts, touch, nextNo, buf, before, true)
+}
+
+func (t *Tracker) observe(key string, item models.ItemID, ts int64, touch uint64, nextNo func() uint64, buf, before []models.Step, wantBefore bool) (Click, Before) {
 	s := t.shardFor(key)
 	s.mu.Lock()
 	defer s.mu.Unlock()
 	e := s.m[key]
 	var c Click
+	var b Before
+	if e != nil {
+		b.Tracked, b.No = true, e.no
+	}
+	copied := false
 	if e != nil && ts-e.last > t.opts.Timeout.Milliseconds() {
 		// The visitor came back after the timeout: a new session.
+		if wantBefore {
+			b.Steps = append(before[:0], e.steps...)
+			copied = true
+		}
 		e.steps = e.steps[:0]
 		e.no = nextNo()
 		c.New = true
@@ -208,6 +241,9 @@ func (t *Tracker) Observe(key string, item models.ItemID, ts int64, touch uint64
 	}
 	c.No = e.no
 	c.Window = append(buf[:0], e.steps...)
+	if b.Tracked && !copied {
+		b.Steps = c.Window
+	}
 	if n := len(e.steps); n > 0 && e.steps[n-1].Item == item {
 		c.Repeat = true
 		e.steps[n-1].TS = ts
@@ -231,7 +267,7 @@ func (t *Tracker) Observe(key string, item models.ItemID, ts int64, touch uint64
 		s.pushFrontLocked(e)
 	}
 	s.markDirtyLocked(e, t.persist)
-	return c
+	return c, b
 }
 
 // Window copies session key's window into buf. ok is false for a session

@@ -95,4 +95,11 @@
 // models, the kfold shuffle uses a seeded PCG, and wall-time latency
 // (p50, p99 of the models' Recommend calls) is left out unless
 // OutputOptions.Timings asks for it. The terminal table always shows it.
+//
+// Two parts run on a second goroutine without changing a result: Load
+// decodes each source there while the caller's goroutine interns in the
+// order read, and a prequential or temporal Run tallies the metrics there
+// while its own goroutine asks the models and teaches them, in turn, in
+// event order; each hand-over is in order, so the results are those of
+// one goroutine.
 package eval

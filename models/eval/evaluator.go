@@ -51,7 +51,7 @@ type evaluator struct {
 	rel  []bool
 	pops []float64
 	out  []QueryScore
-	ans  []int32 // score's answers, between ask and tally
+	ans  []uint32 // score's answers, between ask and tally
 }
 
 func newEvaluator(l *Log, o *Options, items int) *evaluator {
@@ -125,16 +125,6 @@ func (e *evaluator) dictID(li uint32) (models.ItemID, bool) {
 	return id, ok
 }
 
-func (e *evaluator) logItem(id models.ItemID) int32 {
-	if int(id) >= len(e.logOf) {
-		e.sync()
-		if int(id) >= len(e.logOf) {
-			return -1
-		}
-	}
-	return e.logOf[id]
-}
-
 // learned counts a click the models learned, for popularity and coldness.
 func (e *evaluator) learned(li uint32) {
 	e.popCount[li]++
@@ -151,15 +141,16 @@ func (e *evaluator) resetCounts() {
 // coldness; pos is the number of clicks before the query.
 func (e *evaluator) score(q *models.Query, skip func(models.ItemID) bool, rel func(li uint32) bool, nRel int, next uint32, pos int) {
 	e.ans = e.ask(q, skip, e.ans[:0])
-	e.tally(e.ans, rel, nRel, next, pos)
+	e.sync()
+	e.tally(e.ans, e.logOf, rel, nRel, next, pos)
 }
 
-// ask asks every model q and appends the answers to dst as log items: for
-// each model in turn the length of its list, then its items, -1 for an item
-// not in the log. It is the half of scoring that reads the models and the
-// dictionary; tally, the other half, reads only what ask wrote, so the two
-// may run on different goroutines (tallier).
-func (e *evaluator) ask(q *models.Query, skip func(models.ItemID) bool, dst []int32) []int32 {
+// ask asks every model q and appends the answers to dst: for each model in
+// turn the length of its list, then its items' dictionary ids. It is the
+// half of scoring that reads the models; tally, the other half, reads only
+// what ask wrote and a map from dictionary ids to log items, so the two may
+// run on different goroutines (tallier).
+func (e *evaluator) ask(q *models.Query, skip func(models.ItemID) bool, dst []uint32) []uint32 {
 	for _, m := range e.ms {
 		t0 := time.Now()
 		m.buf = m.rec.Recommend(q, e.maxK, skip, m.buf[:0])
@@ -168,17 +159,19 @@ func (e *evaluator) ask(q *models.Query, skip func(models.ItemID) bool, dst []in
 		if len(list) > e.maxK {
 			list = list[:e.maxK]
 		}
-		dst = append(dst, int32(len(list)))
+		dst = append(dst, uint32(len(list)))
 		for _, s := range list {
-			dst = append(dst, e.logItem(s.Item))
+			dst = append(dst, s.Item)
 		}
 	}
 	return dst
 }
 
 // tally scores one query's answers as ask wrote them at the front of ans
-// and returns the rest of ans. Its arguments are score's.
-func (e *evaluator) tally(ans []int32, rel func(li uint32) bool, nRel int, next uint32, pos int) []int32 {
+// and returns the rest of ans. logOf maps dictionary ids to log items (-1:
+// not in the log) and covers every id answered; the other arguments are
+// score's.
+func (e *evaluator) tally(ans []uint32, logOf []int32, rel func(li uint32) bool, nRel int, next uint32, pos int) []uint32 {
 	cold := e.popCount[next] < e.cold
 	pg := min(pos, len(positionLabels)) - 1
 	for _, m := range e.ms {
@@ -186,7 +179,11 @@ func (e *evaluator) tally(ans []int32, rel func(li uint32) bool, nRel int, next 
 		list := ans[1 : 1+n]
 		ans = ans[1+n:]
 		e.rel, e.pops = e.rel[:0], e.pops[:0]
-		for rank, li := range list {
+		for rank, id := range list {
+			li := int32(-1)
+			if int(id) < len(logOf) {
+				li = logOf[id]
+			}
 			isRel := false
 			popv := 0.0
 			if li >= 0 {

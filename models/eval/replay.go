@@ -180,6 +180,35 @@ func runStream(ctx context.Context, l *Log, o *Options, pl *plan, rep *Report) (
 			return false
 		}
 	}
+	// cur is the click being asked about (at -1: none); ask scores the
+	// query of its session, from SessionQueryInto or ApplyAsked. One
+	// closure for the run: one per click would be an allocation each.
+	type asking struct {
+		at     int
+		in     int32
+		target uint32
+		pos    int
+	}
+	cur := asking{at: -1}
+	var tq models.Query    // a query asked without learning its click
+	var qbuf []models.Step // and its window
+	ask := func(qq *models.Query, tracked bool) {
+		if !tracked {
+			sc.Untracked++
+			return
+		}
+		q.Session, q.Now, q.SessionNo = qq.Session, qq.Now, qq.SessionNo
+		if id, known := e.dictID(cur.target); known {
+			for _, w := range q.Session {
+				if w.Item == id {
+					sc.TargetsInSession++
+					break
+				}
+			}
+		}
+		tl.query(&q, inSession, cur.at, cur.in, cur.target, cur.pos)
+		sc.Queries++
+	}
 	for i := range l.ev {
 		if !pl.keep[i] {
 			continue
@@ -207,30 +236,29 @@ func runStream(ctx context.Context, l *Log, o *Options, pl *plan, rep *Report) (
 		case s.last == int64(r.item):
 			sc.Repeats++
 		default:
-			var ok bool
-			// The previous query is done with: its window's array
-			// takes this one.
-			q, ok = p.SessionQueryInto(ev.Session, q.Session[:0])
-			if !ok {
-				sc.Untracked++
+			cur = asking{at: i, in: in, target: r.item, pos: int(s.pos)}
+			if learn {
+				// Asked by ApplyAsked, which finds the session once
+				// for the query and the click.
 				break
 			}
-			target := r.item
-			if id, known := e.dictID(target); known {
-				for _, w := range q.Session {
-					if w.Item == id {
-						sc.TargetsInSession++
-						break
-					}
-				}
-			}
-			tl.query(&q, inSession, i, in, target, int(s.pos))
-			sc.Queries++
+			// The previous such query is done with: its window's
+			// array takes this one.
+			var ok bool
+			tq, ok = p.SessionQueryInto(ev.Session, qbuf[:0])
+			qbuf = tq.Session[:0]
+			ask(&tq, ok)
+			cur.at = -1
 		}
 		if learn {
-			if id, known := e.dictID(r.item); known {
+			id, known := e.dictID(r.item)
+			switch {
+			case cur.at >= 0:
+				p.ApplyAsked(&ev, id, known, ask)
+				cur.at = -1
+			case known:
 				p.ApplyInterned(&ev, id)
-			} else {
+			default:
 				p.Apply(&ev)
 			}
 			tl.learned(r.item)

@@ -29,7 +29,11 @@ type tallyOp struct {
 
 type tallyBatch struct {
 	ops []tallyOp
-	ans []int32 // the queries' answers, as ask writes them, query after query
+	ans []uint32 // the queries' answers, as ask writes them, query after query
+	// logOf holds the log item (or -1) of each dictionary id interned
+	// since the batch before, in id order: the tallier's map from the ids
+	// answered to log items grows by it before the batch is tallied.
+	logOf []int32
 }
 
 // tallier scores a stream replay's queries on a goroutine of its own: the
@@ -40,8 +44,12 @@ type tallyBatch struct {
 // both on one goroutine. A replay is learning and asking, strictly in
 // turn: scoring is the one part that can overlap them. The evaluator's
 // accounting (popCount, maxPop, each model's sums, best and rr) belongs to
-// the tallier's goroutine until wait returns; ask touches only the models,
-// the dictionary maps and each model's latency and buffer.
+// the tallier's goroutine until wait returns; ask touches only the models
+// and each model's latency and buffer. The answers carry dictionary ids:
+// the replay's goroutine, which owns the dictionary, sends the log item of
+// each newly interned id with the batch, and the tallier maps them (a
+// lookup per answered item, moved off the replay's goroutine with the
+// rest).
 type tallier struct {
 	e    *evaluator
 	rest *restIndex // nil: the target is the next click
@@ -50,6 +58,12 @@ type tallier struct {
 	free chan *tallyBatch
 	wg   sync.WaitGroup
 	done bool // wait has run
+	// mapped counts the dictionary ids whose log items have been sent; it
+	// belongs to the replay's goroutine, which owns the dictionary.
+	mapped int
+	// logOf is the tallier goroutine's map from dictionary ids to log
+	// items, grown by each batch.
+	logOf []int32
 
 	// On the tallier's goroutine: the next-click target of the query being
 	// tallied, and isTarget bound to it once (a closure per query would be
@@ -98,10 +112,20 @@ func (t *tallier) learned(li uint32) {
 }
 
 func (t *tallier) send() {
+	// Every id answered so far was interned by now: map them all.
+	e := t.e
+	for ; t.mapped < e.dict.Len(); t.mapped++ {
+		li, ok := e.itemOf[e.dict.Name(uint32(t.mapped))]
+		if !ok {
+			t.cur.logOf = append(t.cur.logOf, -1)
+		} else {
+			t.cur.logOf = append(t.cur.logOf, int32(li))
+		}
+	}
 	t.out <- t.cur
 	select {
 	case t.cur = <-t.free:
-		t.cur.ops, t.cur.ans = t.cur.ops[:0], t.cur.ans[:0]
+		t.cur.ops, t.cur.ans, t.cur.logOf = t.cur.ops[:0], t.cur.ans[:0], t.cur.logOf[:0]
 	default:
 		t.cur = newTallyBatch()
 	}
@@ -126,6 +150,7 @@ func (t *tallier) run() {
 	defer t.wg.Done()
 	e := t.e
 	for b := range t.out {
+		t.logOf = append(t.logOf, b.logOf...)
 		ans := b.ans
 		for _, op := range b.ops {
 			if op.pos == learnedOp {
@@ -138,7 +163,7 @@ func (t *tallier) run() {
 			} else {
 				t.target = op.next
 			}
-			ans = e.tally(ans, rel, nRel, op.next, int(op.pos))
+			ans = e.tally(ans, t.logOf, rel, nRel, op.next, int(op.pos))
 		}
 		select {
 		case t.free <- b:
