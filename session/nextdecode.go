@@ -6,6 +6,8 @@ import (
 	"unicode"
 	"unicode/utf16"
 	"unicode/utf8"
+
+	"waymark/stream"
 )
 
 // decodeNextFast decodes the body of POST /v1/next into the nextBody that
@@ -229,27 +231,11 @@ func nextField(key []byte, prefer bool) int {
 		names = []string{"items", "categories"}
 	}
 	for _, name := range names {
-		if asciiEqualFold(key, name) {
+		if stream.ASCIIEqualFold(key, name) {
 			return fldBail
 		}
 	}
 	return fldUnknown
-}
-
-// asciiEqualFold reports whether ASCII key equals name, ignoring case.
-func asciiEqualFold(key []byte, name string) bool {
-	if len(key) != len(name) {
-		return false
-	}
-	for i, c := range key {
-		if 'A' <= c && c <= 'Z' {
-			c += 'a' - 'A'
-		}
-		if c != name[i] {
-			return false
-		}
-	}
-	return true
 }
 
 // peek returns the byte at the position, or 0 at the end (0 is valid
@@ -261,16 +247,7 @@ func (d *nextDecoder) peek() byte {
 	return 0
 }
 
-func (d *nextDecoder) ws() {
-	for d.i < len(d.data) {
-		switch d.data[d.i] {
-		case ' ', '\t', '\n', '\r':
-			d.i++
-		default:
-			return
-		}
-	}
-}
+func (d *nextDecoder) ws() { d.i = stream.SkipJSONSpace(d.data, d.i) }
 
 // object reads the object at '{' into f: the top one, or prefer's.
 func (d *nextDecoder) object(f *nextFields, prefer bool) bool {
@@ -584,80 +561,9 @@ func hex4(b []byte, j int) rune {
 // accepts invalid UTF-8 in a string). Objects and arrays are left to
 // encoding/json.
 func (d *nextDecoder) skipScalar() bool {
-	b := d.data
-	switch c := d.peek(); {
-	case c == '"':
-		for j := d.i + 1; j < len(b); j++ {
-			switch c := b[j]; {
-			case c == '"':
-				d.i = j + 1
-				return true
-			case c < 0x20:
-				return false
-			case c == '\\':
-				j++
-				if j >= len(b) {
-					return false
-				}
-				switch b[j] {
-				case '"', '\\', '/', 'b', 'f', 'n', 'r', 't':
-				case 'u':
-					if hex4(b, j-1) < 0 {
-						return false
-					}
-					j += 4
-				default:
-					return false
-				}
-			}
-		}
-		return false
-	case c == '-' || ('0' <= c && c <= '9'):
-		return d.skipNumber()
-	case c == 't':
-		return d.literal("true")
-	case c == 'f':
-		return d.literal("false")
-	case c == 'n':
-		return d.literal("null")
+	next, ok := stream.SkipJSONScalar(d.data, d.i)
+	if ok {
+		d.i = next
 	}
-	return false
-}
-
-// skipNumber skips -?(0|[1-9][0-9]*)(\.[0-9]+)?([eE][+-]?[0-9]+)?.
-func (d *nextDecoder) skipNumber() bool {
-	b := d.data
-	j := d.i
-	digits := func() bool {
-		k := j
-		for j < len(b) && '0' <= b[j] && b[j] <= '9' {
-			j++
-		}
-		return j > k
-	}
-	if j < len(b) && b[j] == '-' {
-		j++
-	}
-	if j < len(b) && b[j] == '0' {
-		j++
-	} else if !digits() {
-		return false
-	}
-	if j < len(b) && b[j] == '.' {
-		j++
-		if !digits() {
-			return false
-		}
-	}
-	if j < len(b) && (b[j] == 'e' || b[j] == 'E') {
-		j++
-		if j < len(b) && (b[j] == '+' || b[j] == '-') {
-			j++
-		}
-		if !digits() {
-			return false
-		}
-	}
-	d.i = j
-	return true
+	return ok
 }

@@ -172,22 +172,14 @@ func (p *Pipeline) intern(item string) (models.ItemID, bool) {
 }
 
 // Apply learns one valid event.
-func (p *Pipeline) Apply(ev *stream.Event) {
-	item, known := p.Dict.Lookup(ev.Item)
-	if !known && p.Dict.Len() >= p.opts.MaxItems {
-		p.cp.Overflow++
-		p.cp.Applied++
-		return
-	}
-	p.apply(ev, item, known, nil)
-}
+func (p *Pipeline) Apply(ev *stream.Event) { p.ApplyAsked(ev, 0, false, nil) }
 
 // ApplyInterned is Apply for an event whose item the caller has looked up
 // already: item must be ev.Item's id in Dict. A replay knows the id of
 // every item it has applied once, and this spares it hashing the name
 // again for every click.
 func (p *Pipeline) ApplyInterned(ev *stream.Event, item models.ItemID) {
-	p.apply(ev, item, true, nil)
+	p.ApplyAsked(ev, item, true, nil)
 }
 
 // ApplyAsked is Apply for a caller that asks a query of the click's
@@ -196,16 +188,19 @@ func (p *Pipeline) ApplyInterned(ev *stream.Event, item models.ItemID) {
 // when the session was not tracked) and runs before any model learns the
 // click. The tracker finds the session once for both. item is ev.Item's
 // id when known is true (as for ApplyInterned). The query's Session is
-// valid only during ask; ask must not call the pipeline.
+// valid only during ask; ask must not call the pipeline. With a nil ask it
+// is Apply, or ApplyInterned when known.
 func (p *Pipeline) ApplyAsked(ev *stream.Event, item models.ItemID, known bool, ask func(q *models.Query, tracked bool)) {
 	if !known {
 		item, known = p.Dict.Lookup(ev.Item)
 		if !known && p.Dict.Len() >= p.opts.MaxItems {
-			// Nothing is learned: the query sees the tracker as it is.
-			var ok bool
-			p.asked, ok = p.SessionQueryInto(ev.Session, p.before[:0])
-			p.before = p.asked.Session[:0]
-			ask(&p.asked, ok)
+			if ask != nil {
+				// Nothing is learned: the query sees the tracker as it is.
+				var ok bool
+				p.asked, ok = p.SessionQueryInto(ev.Session, p.before[:0])
+				p.before = p.asked.Session[:0]
+				ask(&p.asked, ok)
+			}
 			p.cp.Overflow++
 			p.cp.Applied++
 			return

@@ -252,15 +252,12 @@ func runStream(ctx context.Context, l *Log, o *Options, pl *plan, rep *Report) (
 		}
 		if learn {
 			id, known := e.dictID(r.item)
-			switch {
-			case cur.at >= 0:
-				p.ApplyAsked(&ev, id, known, ask)
-				cur.at = -1
-			case known:
-				p.ApplyInterned(&ev, id)
-			default:
-				p.Apply(&ev)
+			var a func(*models.Query, bool) // nil: no query of this click
+			if cur.at >= 0 {
+				a = ask
 			}
+			p.ApplyAsked(&ev, id, known, a)
+			cur.at = -1
 			tl.learned(r.item)
 			sc.Learned++
 		} else {
