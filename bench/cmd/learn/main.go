@@ -1,8 +1,10 @@
 // Command learn measures learning in process (issue 6, figure 2): events/s
 // through the session tracker and every core learner, with no bus and no
-// disk, against the bare pair counter on the same events, A B A B. It also
-// runs the pipeline with the session-kNN index, and each learner alone so
-// a profile can be read per model.
+// disk, against the bare pair counter on the same events, A B A B. A second
+// pair sets it against the same pair updates hand-rolled in Go maps
+// (bare.SameWork), which shows what the learning job itself costs on the
+// machine. It also runs the pipeline with the session-kNN index, and each
+// learner alone so a profile can be read per model.
 //
 //	go run ./bench/cmd/learn --events 1000000 --rounds 5
 package main
@@ -43,6 +45,17 @@ func main() {
 	fmt.Printf("learn: %d events over %d items, 1000 concurrent sessions, GOMAXPROCS=%d\n", len(evs), *items, *procs)
 	bareRun := func(int) (float64, error) {
 		c := bare.NewPairCounter()
+		start := time.Now()
+		for i := range evs {
+			c.Add(&evs[i])
+		}
+		return rate(len(evs), start), nil
+	}
+	// The same learning job hand-rolled: every pair update the core
+	// learners make, in Go maps, and nothing else.
+	sameRun := func(int) (float64, error) {
+		c := bare.NewSameWork()
+		runtime.GC()
 		start := time.Now()
 		for i := range evs {
 			c.Add(&evs[i])
@@ -95,6 +108,18 @@ func main() {
 	rec.Pair(os.Stdout, core)
 	fmt.Printf("  core learners: median %s events/s; target >= 1M events/s on one core: %s\n", abab.Fmt(core.MedianA()), abab.Verdict(core.MedianA() >= 1e6))
 	rec.Record("core events/s", map[string]any{"median": core.MedianA(), "target": 1e6, "met": core.MedianA() >= 1e6})
+
+	same, err := abab.Run("learn: tracker + core learners (A) vs the same pair updates in Go maps (B)", "events/s", *rounds, pipeRun(), sameRun)
+	if err != nil {
+		fail(err)
+	}
+	rec.Pair(os.Stdout, same)
+	reach := "no"
+	if same.MedianB() >= 1e6 {
+		reach = "yes"
+	}
+	fmt.Printf("  the same updates in Go maps: median %s events/s; do they reach 1M events/s on one core? %s\n", abab.Fmt(same.MedianB()), reach)
+	rec.Record("same-work bare events/s", map[string]any{"median": same.MedianB(), "ratio": same.Ratio()})
 
 	knn, err := abab.Run("learn: core learners + session-kNN index (A) vs bare pair count (B)", "events/s", *rounds, pipeRun("blend", "vsknn"), bareRun)
 	if err != nil {
