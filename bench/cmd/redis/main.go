@@ -7,6 +7,10 @@
 // item p (in its own memory, as the bare counter does) and sends
 // ZINCRBY cv:p 1 item and ZINCRBY cv:item 1 p, pipelined 1000 events at a
 // time; a query is ZREVRANGE cv:item 0 19 WITHSCORES, one round trip.
+// A second Redis ingest does the same job as waymark's core learners: every
+// update bare.SameWork makes (transitions, sr's 1/gap rules, co-visitation
+// both ways over the 20-item window, supports, popularity), one ZINCRBY
+// each, 12.7 per event on the synthetic clicks, pipelined the same way.
 //
 //   - learning in process: waymark's tracker and core learners vs Redis ingest
 //   - through the bus: `waymark serve` consuming a pre-filled stream (same
@@ -45,6 +49,7 @@ func main() {
 	template := flag.String("template", "", "pre-filled stream template `folder` of the same events (ingest fill)")
 	work := flag.String("work", os.TempDir(), "scratch `folder`")
 	out := flag.String("json", "", "append figures as JSON lines to `file`")
+	sameRounds := flag.Int("same-rounds", 2, "A B rounds against the same updates in Redis (about 13 ZINCRBY per event, so slower)")
 	flag.Parse()
 	rec, closeRec, err := abab.NewRecorder(*out, "redis")
 	if err != nil {
@@ -96,6 +101,66 @@ func main() {
 		}
 		return float64(len(evs)) / time.Since(start).Seconds(), nil
 	}
+	// The same job in Redis: every update waymark's core learners make
+	// for a click (bare.SameWork's, key for key), one ZINCRBY each.
+	sameIngest := func(int) (float64, error) {
+		if _, err := rc.Do("FLUSHALL"); err != nil {
+			return 0, err
+		}
+		// sr's 1/gap as ZINCRBY increments
+		srWeight := [...]string{1: "1", 2: "0.5", 3: "0.3333333333333333", 4: "0.25", 5: "0.2"}
+		win := map[string][]string{}
+		start := time.Now()
+		pending, sent := 0, 0
+		send := func(key, member string, by string) {
+			rc.Send("ZINCRBY", key, by, member)
+			pending++
+			sent++
+		}
+		for i := range evs {
+			ev := &evs[i]
+			send("pop", ev.Item, "1")
+			w := win[ev.Session]
+			n := len(w)
+			if n == 0 || w[n-1] != ev.Item {
+				if n > 0 {
+					send("tr:"+w[n-1], ev.Item, "1")
+				}
+				for gap := 1; gap <= 5 && gap <= n; gap++ {
+					if a := w[n-gap]; a != ev.Item {
+						send("sr:"+a, ev.Item, srWeight[gap])
+					}
+				}
+				if !containsItem(w, ev.Item) {
+					send("sup", ev.Item, "1")
+					for j, x := range w {
+						if !containsItem(w[:j], x) {
+							send("cv:"+x, ev.Item, "1")
+							send("cv:"+ev.Item, x, "1")
+						}
+					}
+				}
+				if n == 20 {
+					copy(w, w[1:])
+					w = w[:n-1]
+				}
+				win[ev.Session] = append(w, ev.Item)
+			}
+			if (i+1)%1000 == 0 || i == len(evs)-1 {
+				if err := rc.Flush(); err != nil {
+					return 0, err
+				}
+				for ; pending > 0; pending-- {
+					if _, err := rc.Reply(); err != nil {
+						return 0, err
+					}
+				}
+			}
+		}
+		r := float64(len(evs)) / time.Since(start).Seconds()
+		fmt.Printf("  the same updates in Redis: %.1f ZINCRBY per event\n", float64(sent)/float64(len(evs)))
+		return r, nil
+	}
 	var p *session.Pipeline
 	inProcess := func(int) (float64, error) {
 		o := session.DefaultPipelineOptions()
@@ -117,6 +182,12 @@ func main() {
 	}
 	learn.Target = 10
 	rec.Pair(os.Stdout, learn)
+	same, err := abab.Run("vs Redis: waymark learning in process, tracker + core learners (A) vs the same updates as ZINCRBY in Redis (B)", "events/s", *sameRounds, inProcess, sameIngest)
+	if err != nil {
+		fail(err)
+	}
+	same.Target = 10
+	rec.Pair(os.Stdout, same)
 	if v, err := rc.Do("INFO", "memory"); err == nil {
 		if s, ok := v.(string); ok {
 			for _, l := range splitLines(s) {
@@ -129,28 +200,36 @@ func main() {
 
 	if *template != "" && *waymark != "" {
 		var s *svc.Serve
-		bus, err := abab.Run("vs Redis: waymark serve through the bus, pre-filled stream (A) vs Redis ZINCRBY ingest (B)", "events/s", *rounds,
-			func(r int) (float64, error) {
-				if s != nil {
-					s.Stop(time.Minute)
-					os.RemoveAll(s.Dir)
-				}
-				dir := filepath.Join(*work, fmt.Sprintf("redis-serve-%d", r))
-				if err := svc.CopyDir(*template, dir); err != nil {
-					return 0, err
-				}
-				var err error
-				if s, err = svc.Start(*waymark, dir); err != nil {
-					return 0, err
-				}
-				pr, err := s.WaitApplied(uint64(*events), 20*time.Millisecond, 15*time.Minute)
-				return pr.Rate(), err
-			}, redisIngest)
+		runs := 0
+		busRun := func(int) (float64, error) {
+			if s != nil {
+				s.Stop(time.Minute)
+				os.RemoveAll(s.Dir)
+			}
+			runs++
+			dir := filepath.Join(*work, fmt.Sprintf("redis-serve-%d", runs))
+			if err := svc.CopyDir(*template, dir); err != nil {
+				return 0, err
+			}
+			var err error
+			if s, err = svc.Start(*waymark, dir); err != nil {
+				return 0, err
+			}
+			pr, err := s.WaitApplied(uint64(*events), 20*time.Millisecond, 15*time.Minute)
+			return pr.Rate(), err
+		}
+		bus, err := abab.Run("vs Redis: waymark serve through the bus, pre-filled stream (A) vs Redis ZINCRBY ingest (B)", "events/s", *rounds, busRun, redisIngest)
 		if err != nil {
 			fail(err)
 		}
 		bus.Target = 2.5
 		rec.Pair(os.Stdout, bus)
+		busSame, err := abab.Run("vs Redis: waymark serve through the bus, pre-filled stream (A) vs the same updates as ZINCRBY in Redis (B)", "events/s", *sameRounds, busRun, sameIngest)
+		if err != nil {
+			fail(err)
+		}
+		busSame.Target = 2.5
+		rec.Pair(os.Stdout, busSame)
 		defer func() { s.Stop(time.Minute); os.RemoveAll(s.Dir) }()
 		// HTTP round trip, one connection, one request at a time.
 		qs := lastItems(*items, *queries)
@@ -248,6 +327,15 @@ func splitLines(s string) []string {
 		}
 	}
 	return out
+}
+
+func containsItem(w []string, it string) bool {
+	for _, x := range w {
+		if x == it {
+			return true
+		}
+	}
+	return false
 }
 
 func fail(err error) {
