@@ -212,6 +212,7 @@ func runBareChild(args []string) error {
 	startOnly := fs.Bool("start-only", false, "start the server, report ready, stop")
 	seen := fs.String("seen", "", "publish the item of every event whose item starts with fresh- on this core `subject`")
 	ackEvery := fs.Int("ack-every", 1000, "acknowledge every this many messages (AckAll)")
+	sameWork := fs.Bool("same-work", false, "also make the core learners' pair updates in Go maps (bare.SameWork) for every event")
 	fs.Parse(args)
 	ctx, cancel := signal.NotifyContext(context.Background(), syscall.SIGTERM, os.Interrupt)
 	defer cancel()
@@ -239,6 +240,9 @@ func runBareChild(args []string) error {
 		*n = int(^uint(0) >> 1)
 	}
 	var onMsg func(*stream.Event)
+	if *sameWork {
+		onMsg = bare.NewSameWork().Add
+	}
 	if *seen != "" {
 		nc := bus.Conn()
 		onMsg = func(ev *stream.Event) {
@@ -315,6 +319,7 @@ func self() string {
 func runBus(args []string) error {
 	c := newCommon("bus")
 	profile := c.fs.String("profile", "", "save a 5 s CPU profile of serve during round 1 to `file`")
+	sameWork := c.fs.Bool("same-work", false, "also run serve against a bare consumer that makes the core learners' pair updates in Go maps")
 	c.fs.Parse(args)
 	if c.template == "" {
 		return fmt.Errorf("--template is required")
@@ -325,43 +330,52 @@ func runBus(args []string) error {
 	}
 	defer closeRec()
 	fmt.Printf("bus: serve (embedded server, file storage, default flush, default models) consuming a pre-filled stream of %d events vs the bare consumer\n", c.events)
-	pair, err := abab.Run("ingest through the bus, pre-filled: serve (A) vs bare decode+ack consumer (B)", "events/s", c.rounds,
-		func(r int) (float64, error) {
-			dir, err := c.fromTemplate(fmt.Sprintf("bus-a-%d", r))
+	runs := 0
+	serveRun := func(r int) (float64, error) {
+		runs++
+		dir, err := c.fromTemplate(fmt.Sprintf("bus-a-%d", runs))
+		defer os.RemoveAll(dir)
+		if err != nil {
+			return 0, err
+		}
+		s, err := c.start(dir)
+		if err != nil {
+			return 0, err
+		}
+		defer s.Stop(time.Minute)
+		if runs == 1 && *profile != "" {
+			go func() {
+				time.Sleep(time.Second)
+				if err := s.Profile(context.Background(), 5*time.Second, *profile); err != nil {
+					fmt.Fprintln(os.Stderr, "profile:", err)
+				}
+			}()
+		}
+		p, err := s.WaitApplied(uint64(c.events), 20*time.Millisecond, 15*time.Minute)
+		if err != nil {
+			return 0, err
+		}
+		fmt.Fprintf(os.Stderr, "    serve: first applied %s after start, all %d after %s\n", p.First.Sub(s.Started).Round(time.Millisecond), p.N, p.Last.Sub(s.Started).Round(time.Millisecond))
+		if m, err := s.Metrics("waymark_flush", "waymark_bus_consumer_recreations", "waymark_bus_redelivered"); err == nil {
+			fmt.Printf("  round %d serve metrics: %s\n", r+1, flushSummary(m))
+		}
+		return p.Rate(), nil
+	}
+	// bareRun is the bare consumer on a copy of the same stream; with
+	// sameWork it also makes the core learners' pair updates in Go maps,
+	// with no store.
+	bareRun := func(sameWork bool) func(int) (float64, error) {
+		return func(r int) (float64, error) {
+			dir, err := c.fromTemplate(fmt.Sprintf("bus-b-%d-%v", r, sameWork))
 			defer os.RemoveAll(dir)
 			if err != nil {
 				return 0, err
 			}
-			s, err := c.start(dir)
-			if err != nil {
-				return 0, err
+			args := []string{"--dir", filepath.Join(dir, "nats"), "--events", fmt.Sprint(c.events)}
+			if sameWork {
+				args = append(args, "--same-work")
 			}
-			defer s.Stop(time.Minute)
-			if r == 0 && *profile != "" {
-				go func() {
-					time.Sleep(time.Second)
-					if err := s.Profile(context.Background(), 5*time.Second, *profile); err != nil {
-						fmt.Fprintln(os.Stderr, "profile:", err)
-					}
-				}()
-			}
-			p, err := s.WaitApplied(uint64(c.events), 20*time.Millisecond, 15*time.Minute)
-			if err != nil {
-				return 0, err
-			}
-			fmt.Fprintf(os.Stderr, "    serve: first applied %s after start, all %d after %s\n", p.First.Sub(s.Started).Round(time.Millisecond), p.N, p.Last.Sub(s.Started).Round(time.Millisecond))
-			if m, err := s.Metrics("waymark_flush", "waymark_bus_consumer_recreations", "waymark_bus_redelivered"); err == nil {
-				fmt.Printf("  round %d serve metrics: %s\n", r+1, flushSummary(m))
-			}
-			return p.Rate(), nil
-		},
-		func(r int) (float64, error) {
-			dir, err := c.fromTemplate(fmt.Sprintf("bus-b-%d", r))
-			defer os.RemoveAll(dir)
-			if err != nil {
-				return 0, err
-			}
-			ch, err := startChild(self(), "--dir", filepath.Join(dir, "nats"), "--events", fmt.Sprint(c.events))
+			ch, err := startChild(self(), args...)
 			if err != nil {
 				return 0, err
 			}
@@ -373,12 +387,23 @@ func runBus(args []string) error {
 				return 0, fmt.Errorf("%d events did not decode", res.Bad)
 			}
 			return res.Rate, nil
-		})
+		}
+	}
+	pair, err := abab.Run("ingest through the bus, pre-filled: serve (A) vs bare decode+ack consumer (B)", "events/s", c.rounds, serveRun,
+		bareRun(false))
 	if err != nil {
 		return err
 	}
 	pair.Target = 0.6
 	rec.Pair(os.Stdout, pair)
+	if !*sameWork {
+		return nil
+	}
+	same, err := abab.Run("ingest through the bus, pre-filled: serve (A) vs bare consumer making the same pair updates in Go maps (B)", "events/s", c.rounds, serveRun, bareRun(true))
+	if err != nil {
+		return err
+	}
+	rec.Pair(os.Stdout, same)
 	return nil
 }
 
