@@ -4,10 +4,14 @@
 // lines, decode each with the project's decoder, nothing else), each as
 // its own process, A B A B. A third pass times the learning-only replay
 // (a temporal split after the last event: everything learned, nothing
-// asked), and the in-process learning of the same events by sr alone.
+// asked), and the in-process learning of the same events by sr alone. A
+// second pair sets the prequential replay against the same evaluation
+// written plainly (bare.PrequentialSR: decode, rank the last item's rules
+// in a Go map, learn 1/gap rules), which shows what the job itself costs.
 //
 //	replay run --waymark ./waymark --events 1000000
 //	replay decode FILE          (the bare decode, started by run)
+//	replay prequential FILE     (the plain evaluation, started by run)
 package main
 
 import (
@@ -41,6 +45,16 @@ func main() {
 		err = run(os.Args[2:])
 	case "profile":
 		err = profile(os.Args[2:])
+	case "prequential":
+		if len(os.Args) != 3 {
+			err = fmt.Errorf("usage: replay prequential FILE")
+			break
+		}
+		var p *bare.PrequentialSR
+		var n int
+		if p, n, err = bare.PrequentialFile(os.Args[2], 20); err == nil {
+			fmt.Printf("%d events, %d asked, HitRate@20 %.4f, MRR@20 %.4f\n", n, p.Asked, p.HitRate(), p.MRR())
+		}
 	case "decode":
 		if len(os.Args) != 3 {
 			err = fmt.Errorf("usage: replay decode FILE")
@@ -99,6 +113,12 @@ func run(args []string) error {
 	}
 	preq.Target = 0.25
 	rec.Pair(os.Stdout, preq)
+	same, err := abab.Run("replay: waymark replay --models sr --k 20, prequential (A) vs the same evaluation written plainly in Go maps, bare decode included (B)", "events/s", *rounds,
+		timed(*waymark, "replay", "--models", "sr", "--k", "20", "--quiet", path), timed(self, "prequential", path))
+	if err != nil {
+		return err
+	}
+	rec.Pair(os.Stdout, same)
 	learn, err := abab.Run("replay: learning-only pass, waymark replay --models sr --split-at 2100-01-01 (A) vs bare decode of the file (B)", "events/s", *rounds,
 		timed(*waymark, "replay", "--models", "sr", "--k", "20", "--quiet", "--split-at", "2100-01-01T00:00:00Z", path), decode)
 	if err != nil {
