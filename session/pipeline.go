@@ -4,7 +4,9 @@ import (
 	"context"
 	"fmt"
 	"math"
+	"runtime"
 	"strings"
+	"sync"
 	"time"
 
 	"waymark/models"
@@ -368,29 +370,86 @@ func (p *Pipeline) Load(ctx context.Context, st *store.Store) error {
 	if cp.Config != "" && cp.Config != p.fingerprint() {
 		return fmt.Errorf("%w: stored %q, configured %q (use a fresh data folder)", ErrConfigChanged, cp.Config, p.fingerprint())
 	}
-	d, err := st.LoadDict(ctx, itemPrefix)
-	if err != nil {
-		return err
+	// The dictionary, the sessions and each learner live under their own
+	// prefixes and restore into their own state, so they load side by
+	// side: a restart is decoding-bound, and the cores would otherwise
+	// take turns.
+	tasks := []func(context.Context) error{
+		func(ctx context.Context) error {
+			d, err := st.LoadDict(ctx, itemPrefix)
+			if err != nil {
+				return err
+			}
+			p.Dict = d
+			return nil
+		},
+		func(ctx context.Context) error {
+			if err := st.Scan(ctx, []byte(sessionPrefix), p.Tracker.Load); err != nil {
+				return fmt.Errorf("load sessions: %w", err)
+			}
+			p.Tracker.Loaded()
+			return nil
+		},
 	}
-	p.Dict = d
-	if err := st.Scan(ctx, []byte(sessionPrefix), p.Tracker.Load); err != nil {
-		return fmt.Errorf("load sessions: %w", err)
-	}
-	p.Tracker.Loaded()
 	for _, m := range p.learners {
-		pm, ok := m.(models.Persistent)
-		if !ok {
-			continue
+		if pm, ok := m.(models.Persistent); ok {
+			tasks = append(tasks, func(ctx context.Context) error {
+				if err := st.Scan(ctx, []byte(pm.Prefix()), pm.Load); err != nil {
+					return fmt.Errorf("load %s: %w", pm.Prefix(), err)
+				}
+				return nil
+			})
 		}
-		if err := st.Scan(ctx, []byte(pm.Prefix()), pm.Load); err != nil {
-			return fmt.Errorf("load %s: %w", pm.Prefix(), err)
-		}
+	}
+	if err := runTasks(ctx, runtime.GOMAXPROCS(0), tasks); err != nil {
+		return err
 	}
 	p.cp = cp
 	if cp.DecayRef != 0 {
 		p.setDecayRef(cp.DecayRef)
 	}
 	return nil
+}
+
+// runTasks runs tasks on up to workers goroutines and returns the first
+// error, after which the tasks not yet started are not run and the running
+// ones see their context cancelled.
+func runTasks(ctx context.Context, workers int, tasks []func(context.Context) error) error {
+	ctx, cancel := context.WithCancel(ctx)
+	defer cancel()
+	var (
+		mu    sync.Mutex
+		next  int
+		first error
+		wg    sync.WaitGroup
+	)
+	take := func() func(context.Context) error {
+		mu.Lock()
+		defer mu.Unlock()
+		if first != nil || next == len(tasks) {
+			return nil
+		}
+		next++
+		return tasks[next-1]
+	}
+	for range min(max(workers, 1), len(tasks)) {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			for t := take(); t != nil; t = take() {
+				if err := t(ctx); err != nil {
+					mu.Lock()
+					if first == nil {
+						first = err
+						cancel()
+					}
+					mu.Unlock()
+				}
+			}
+		}()
+	}
+	wg.Wait()
+	return first
 }
 
 // Track updates the session's window with ev without teaching any model;
