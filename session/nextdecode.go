@@ -221,10 +221,8 @@ func nextField(key []byte, prefer bool) int {
 			return fldTimeout
 		}
 	}
-	for _, c := range key {
-		if c >= utf8.RuneSelf {
-			return fldBail
-		}
+	if !stream.JSONKeyASCII(key) {
+		return fldBail
 	}
 	names := []string{"session", "items", "k", "keep_session_items", "category", "exclude", "context", "prefer", "timeout_ms"}
 	if prefer {

@@ -265,10 +265,8 @@ func fieldOf(key []byte) int {
 	case "id":
 		return fieldID
 	}
-	for _, c := range key {
-		if c >= utf8.RuneSelf {
-			return fieldFallback
-		}
+	if !JSONKeyASCII(key) {
+		return fieldFallback
 	}
 	switch len(key) {
 	case 2:

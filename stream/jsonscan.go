@@ -1,5 +1,7 @@
 package stream
 
+import "unicode/utf8"
+
 // The scanning steps of the event decoder, for the other hand-written
 // decoders of the project (session's request decoder), so JSON's grammar
 // of whitespace, numbers, strings and literals is written once.
@@ -22,3 +24,16 @@ func SkipJSONScalar(b []byte, i int) (next int, ok bool) {
 // ASCIIEqualFold reports whether b equals lower (lower-case ASCII) apart
 // from the case of ASCII letters.
 func ASCIIEqualFold(b []byte, lower string) bool { return asciiEqualFold(b, lower) }
+
+// JSONKeyASCII reports whether a JSON object key is all ASCII. A decoder
+// matches such a key to its fields case-insensitively itself (what
+// encoding/json does); any other key needs Unicode case folding, so it is
+// left to encoding/json.
+func JSONKeyASCII(key []byte) bool {
+	for _, c := range key {
+		if c >= utf8.RuneSelf {
+			return false
+		}
+	}
+	return true
+}

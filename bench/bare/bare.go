@@ -52,18 +52,29 @@ func (c *PairCounter) Pairs() int { return len(c.pairs) }
 // project's allocation-light decoder and nothing else: no sort, no
 // session bookkeeping. It returns the number of events decoded.
 func DecodeFile(path string) (int, error) {
-	f, err := os.Open(path)
+	return eachEvent(path, nil)
+}
+
+// eachEvent decodes every line of a JSON-lines file with the project's
+// decoder and hands each event to f (when not nil). It returns the number
+// of events decoded.
+func eachEvent(path string, f func(*stream.Event)) (int, error) {
+	fh, err := os.Open(path)
 	if err != nil {
 		return 0, err
 	}
-	defer f.Close()
-	r := bufio.NewReaderSize(f, 1<<20)
+	defer fh.Close()
+	r := bufio.NewReaderSize(fh, 1<<20)
 	n := 0
 	for {
 		line, err := r.ReadSlice('\n')
 		if len(line) > 1 {
-			if _, derr := stream.DecodeJSON(line[:len(line)-1]); derr != nil {
+			ev, derr := stream.DecodeJSON(line[:len(line)-1])
+			if derr != nil {
 				return n, fmt.Errorf("line %d: %w", n+1, derr)
+			}
+			if f != nil {
+				f(&ev)
 			}
 			n++
 		}

@@ -1,14 +1,6 @@
 package bare
 
-import (
-	"bufio"
-	"errors"
-	"fmt"
-	"io"
-	"os"
-
-	"waymark/stream"
-)
+import "waymark/stream"
 
 // PrequentialSR is the prequential evaluation of Sequential Rules written
 // plainly: before each click of a session that has a previous item, rank
@@ -116,29 +108,7 @@ func (p *PrequentialSR) MRR() float64 { return p.RRSum / float64(max(p.Asked, 1)
 // PrequentialFile runs the evaluation over a JSON-lines file, decoding each
 // line with the project's decoder as DecodeFile does.
 func PrequentialFile(path string, k int) (*PrequentialSR, int, error) {
-	f, err := os.Open(path)
-	if err != nil {
-		return nil, 0, err
-	}
-	defer f.Close()
 	p := NewPrequentialSR(k)
-	r := bufio.NewReaderSize(f, 1<<20)
-	n := 0
-	for {
-		line, err := r.ReadSlice('\n')
-		if len(line) > 1 {
-			ev, derr := stream.DecodeJSON(line[:len(line)-1])
-			if derr != nil {
-				return p, n, fmt.Errorf("line %d: %w", n+1, derr)
-			}
-			p.Add(&ev)
-			n++
-		}
-		if errors.Is(err, io.EOF) {
-			return p, n, nil
-		}
-		if err != nil {
-			return p, n, err
-		}
-	}
+	n, err := eachEvent(path, p.Add)
+	return p, n, err
 }

@@ -47,6 +47,20 @@ func (r *Redis) Send(args ...string) {
 // Flush writes the buffered commands.
 func (r *Redis) Flush() error { return r.w.Flush() }
 
+// Drain sends the buffered commands and reads the n replies they are owed,
+// the end of one pipeline.
+func (r *Redis) Drain(n int) error {
+	if err := r.Flush(); err != nil {
+		return err
+	}
+	for ; n > 0; n-- {
+		if _, err := r.Reply(); err != nil {
+			return err
+		}
+	}
+	return nil
+}
+
 // Reply reads one reply; arrays come back as []any, bulk strings as
 // string, integers as int64, errors as an error.
 func (r *Redis) Reply() (any, error) {

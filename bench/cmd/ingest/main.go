@@ -94,6 +94,20 @@ func (c *common) start(dir string) (*svc.Serve, error) {
 	return svc.Start(c.waymark, dir, strings.Fields(c.serveArgs)...)
 }
 
+// serveCopy starts serve on a fresh copy of the template named name; done
+// stops it and removes the copy.
+func (c *common) serveCopy(name string) (s *svc.Serve, done func(), err error) {
+	dir, err := c.fromTemplate(name)
+	if err == nil {
+		s, err = c.start(dir)
+	}
+	if err != nil {
+		os.RemoveAll(dir)
+		return nil, nil, err
+	}
+	return s, func() { s.Stop(time.Minute); os.RemoveAll(dir) }, nil
+}
+
 func newCommon(name string) *common {
 	c := &common{fs: flag.NewFlagSet(name, flag.ExitOnError)}
 	c.fs.StringVar(&c.waymark, "waymark", "./waymark", "the waymark `binary`")
@@ -333,16 +347,11 @@ func runBus(args []string) error {
 	runs := 0
 	serveRun := func(r int) (float64, error) {
 		runs++
-		dir, err := c.fromTemplate(fmt.Sprintf("bus-a-%d", runs))
-		defer os.RemoveAll(dir)
+		s, done, err := c.serveCopy(fmt.Sprintf("bus-a-%d", runs))
 		if err != nil {
 			return 0, err
 		}
-		s, err := c.start(dir)
-		if err != nil {
-			return 0, err
-		}
-		defer s.Stop(time.Minute)
+		defer done()
 		if runs == 1 && *profile != "" {
 			go func() {
 				time.Sleep(time.Second)
@@ -647,16 +656,11 @@ func runFresh(args []string) error {
 	fmt.Printf("fresh: %d probes per round at %s events/s of background ingest; a probe publishes a new item's first click and queries every %s until an answer holds it\n", *probes, abab.Fmt(*rate), *poll)
 	pair, err := abab.Run("freshness: serve, click published → item in a /v1/next answer (A) vs bare consumer receipt (B), median per round", "ms", c.rounds,
 		func(r int) (float64, error) {
-			dir, err := c.fromTemplate(fmt.Sprintf("fresh-a-%d", r))
-			defer os.RemoveAll(dir)
+			s, done, err := c.serveCopy(fmt.Sprintf("fresh-a-%d", r))
 			if err != nil {
 				return 0, err
 			}
-			s, err := c.start(dir)
-			if err != nil {
-				return 0, err
-			}
-			defer s.Stop(time.Minute)
+			defer done()
 			if _, err := s.WaitApplied(uint64(c.events), 100*time.Millisecond, 15*time.Minute); err != nil {
 				return 0, err
 			}

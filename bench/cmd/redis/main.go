@@ -89,14 +89,10 @@ func main() {
 			}
 			last[ev.Session] = ev.Item
 			if (i+1)%1000 == 0 || i == len(evs)-1 {
-				if err := rc.Flush(); err != nil {
+				if err := rc.Drain(pending); err != nil {
 					return 0, err
 				}
-				for ; pending > 0; pending-- {
-					if _, err := rc.Reply(); err != nil {
-						return 0, err
-					}
-				}
+				pending = 0
 			}
 		}
 		return float64(len(evs)) / time.Since(start).Seconds(), nil
@@ -147,14 +143,10 @@ func main() {
 				win[ev.Session] = append(w, ev.Item)
 			}
 			if (i+1)%1000 == 0 || i == len(evs)-1 {
-				if err := rc.Flush(); err != nil {
+				if err := rc.Drain(pending); err != nil {
 					return 0, err
 				}
-				for ; pending > 0; pending-- {
-					if _, err := rc.Reply(); err != nil {
-						return 0, err
-					}
-				}
+				pending = 0
 			}
 		}
 		r := float64(len(evs)) / time.Since(start).Seconds()
