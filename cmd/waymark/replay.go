@@ -222,6 +222,10 @@ func runReplay(ctx context.Context, args []string, stdout, stderr io.Writer) int
 		fmt.Fprintln(stderr, "waymark replay:", err)
 		return 1
 	}
+	rep.Run = runInfo("replay", args)
+	for _, w := range rep.Warnings {
+		fmt.Fprintln(stderr, "waymark replay: warning:", w)
+	}
 	if rep.Dataset.OutOfOrder > 0 {
 		fmt.Fprintf(stderr, "waymark replay: %d events were out of time order in their file and were sorted into place\n", rep.Dataset.OutOfOrder)
 	}

@@ -44,6 +44,7 @@ func Run(ctx context.Context, l *Log, opts Options) (*Report, error) {
 	}
 	rep.Preprocessing = pl.prep
 	rep.Models = e.finish()
+	rep.Warnings = rep.warnings()
 	return rep, nil
 }
 

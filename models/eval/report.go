@@ -37,6 +37,31 @@ type Report struct {
 	Protocol      ProtocolInfo  `json:"protocol"`
 	Preprocessing Preprocessing `json:"preprocessing"`
 	Scoring       Scoring       `json:"scoring"`
+	// Warnings say where a figure reads differently from what it seems
+	// (a cut-off as large as the catalogue, for one).
+	Warnings []string `json:"warnings,omitempty"`
+	// Run says what produced the report, so a figure can be traced to a
+	// build and a command; the caller fills it (Run leaves it nil).
+	Run *RunInfo `json:"run,omitempty"`
+}
+
+// RunInfo names the build and the command line that produced a report.
+type RunInfo struct {
+	Version string `json:"version"`
+	Commit  string `json:"commit,omitempty"`
+	Command string `json:"command,omitempty"`
+}
+
+// warnings lists what a reader of the report should know before reading
+// its figures.
+func (r *Report) warnings() []string {
+	var w []string
+	if n := r.Dataset.Items; n > 0 && len(r.Protocol.K) > 0 {
+		if k := r.Protocol.K[len(r.Protocol.K)-1]; int64(k) >= n {
+			w = append(w, fmt.Sprintf("K = %d is not below the %d items of the dataset: a model that ranks every item hits at K = %d whenever the target is not excluded, so HitRate@%d and Recall@%d say little; read MRR, NDCG and the smaller cut-offs", k, n, k, k, k))
+		}
+	}
+	return w
 }
 
 // ModelResult is one model's scores.

@@ -53,6 +53,10 @@ type legendItem struct {
 }
 
 type htmlView struct {
+	Run         string
+	Warnings    []string
+	HasCold     bool // some query had a cold target
+	HasPos      bool // the session-position breakdown has queries
 	Protocol    string
 	Dataset     string
 	Legend      []legendItem
@@ -95,7 +99,13 @@ func subsetCell(key string, v float64, n int64) cell {
 func (r *Report) htmlView(opts OutputOptions) *htmlView {
 	ks := r.Protocol.K
 	maxK := ks[len(ks)-1]
-	v := &htmlView{Protocol: r.Protocol.ProtocolLine(), Dataset: r.Dataset.DatasetLine(), MaxK: maxK}
+	v := &htmlView{Run: r.RunLine(), Warnings: r.Warnings, Protocol: r.Protocol.ProtocolLine(), Dataset: r.Dataset.DatasetLine(), MaxK: maxK}
+	for _, m := range r.Models {
+		v.HasCold = v.HasCold || m.Cold.Queries > 0
+		for _, p := range m.Positions {
+			v.HasPos = v.HasPos || p.Queries > 0
+		}
+	}
 	for i, m := range r.Models {
 		c, d := seriesColor(i)
 		v.Legend = append(v.Legend, legendItem{Name: m.Name, Color: c, Dash: d})
@@ -146,7 +156,7 @@ func (r *Report) htmlView(opts OutputOptions) *htmlView {
 			numCell(hk, m.Metrics[hk]), numCell(mk, m.Metrics[mk]),
 		}})
 	}
-	v.ColdChart = barChart("Cold targets and all queries at K = "+strconv.Itoa(maxK), []string{"HitRate cold", "HitRate all", "MRR cold", "MRR all"}, coldSeries, fmtShort)
+	v.ColdChart = barChart("Cold targets and all queries at K = "+strconv.Itoa(maxK), []string{"HitRate cold", "HitRate all", "MRR cold", "MRR all"}, coldSeries, nil)
 
 	// Session position.
 	var posSeries []series
@@ -169,7 +179,7 @@ func (r *Report) htmlView(opts OutputOptions) *htmlView {
 		posSeries = append(posSeries, s)
 		v.PosTable.Rows = append(v.PosTable.Rows, row)
 	}
-	v.PosChart = barChart(hk+" by session position", posLabels, posSeries, fmtShort)
+	v.PosChart = barChart(hk+" by session position", posLabels, posSeries, nil)
 
 	v.Signif = htmlTable{Caption: TestName, Heads: []string{"against", "MRR diff", "MRR 95% CI", "MRR p", "HitRate diff", "HitRate p"}}
 	for i, m := range r.Models {
@@ -177,11 +187,11 @@ func (r *Report) htmlView(opts OutputOptions) *htmlView {
 		if s := m.Significance; s != nil {
 			row.Cells = []cell{
 				textCell("significance:against", s.Against),
-				numCell("significance:mrr:mean_diff", s.MRR.MeanDiff),
+				{Key: "significance:mrr:mean_diff", Value: fmtFloat(s.MRR.MeanDiff), Text: fmtDiff(s.MRR.MeanDiff)},
 				textCell("significance:mrr:ci95", fmtMetric(s.MRR.CI95[0])+" .. "+fmtMetric(s.MRR.CI95[1])),
-				{Key: "significance:mrr:p", Value: fmtFloat(s.MRR.P), Text: strconv.FormatFloat(s.MRR.P, 'g', 3, 64)},
-				numCell("significance:hitrate:mean_diff", s.HitRate.MeanDiff),
-				{Key: "significance:hitrate:p", Value: fmtFloat(s.HitRate.P), Text: strconv.FormatFloat(s.HitRate.P, 'g', 3, 64)},
+				{Key: "significance:mrr:p", Value: fmtFloat(s.MRR.P), Text: fmtP(s.MRR.P)},
+				{Key: "significance:hitrate:mean_diff", Value: fmtFloat(s.HitRate.MeanDiff), Text: fmtDiff(s.HitRate.MeanDiff)},
+				{Key: "significance:hitrate:p", Value: fmtFloat(s.HitRate.P), Text: fmtP(s.HitRate.P)},
 			}
 		} else {
 			row.Cells = []cell{textCell("significance:against", "best"), {}, {}, {}, {}, {}}
@@ -208,7 +218,7 @@ func (r *Report) htmlView(opts OutputOptions) *htmlView {
 		{"items", intCell("dataset:items", d.Items)},
 		{"first event", textCell("dataset:first", d.First)},
 		{"last event", textCell("dataset:last", d.Last)},
-		{"time span (s)", textCell("dataset:span_seconds", fmtFloat(d.SpanSeconds))},
+		{"time span", cell{Key: "dataset:span_seconds", Value: fmtFloat(d.SpanSeconds), Text: fmtSpan(d.SpanSeconds)}},
 		{"sessions of length 1", intCell("dataset:sessions_length_1", d.SessionsLength1)},
 		{"mean session length", cell{Key: "dataset:mean_length", Value: fmtFloat(d.MeanLength), Text: strconv.FormatFloat(d.MeanLength, 'f', 2, 64)}},
 		{"longest session", intCell("dataset:max_length", d.MaxLength)},
@@ -250,7 +260,7 @@ func (r *Report) htmlView(opts OutputOptions) *htmlView {
 	pr := r.Protocol
 	v.Settings = []kv{
 		{"protocol", textCell("protocol:name", string(pr.Name))},
-		{"target", textCell("protocol:target", string(pr.Target))},
+		{"target", targetCell(pr)},
 		{"excluded", textCell("protocol:exclude", string(pr.Exclude))},
 		{"session window", intCell("protocol:window", int64(pr.Window))},
 		{"session timeout", textCell("protocol:session_timeout", pr.SessionTimeout)},
@@ -269,7 +279,15 @@ func (r *Report) htmlView(opts OutputOptions) *htmlView {
 	return v
 }
 
-func fmtShort(v float64) string { return strconv.FormatFloat(v, 'f', 3, 64) }
+// targetCell names the target of a query: the next click, the rest of the
+// session, or under kfold the session's last items.
+func targetCell(pr ProtocolInfo) cell {
+	c := textCell("protocol:target", string(pr.Target))
+	if pr.KFold != nil {
+		c.Text = "last " + strconv.Itoa(pr.KFold.Targets) + " items of the session"
+	}
+	return c
+}
 
 func fmtCount(v float64) string {
 	switch {
@@ -306,14 +324,17 @@ figure{margin:0;background:#fff;border:1px solid #e4e4e4;border-radius:4px;paddi
 figcaption{font-size:13px;font-weight:600;color:#333;padding:2px 4px}
 .two{display:flex;flex-wrap:wrap;gap:24px;align-items:flex-start}
 .note{font-size:12px;color:#555}
+.warn{font-size:14px;background:#fff4e0;border-left:4px solid #E69F00;padding:6px 10px;margin:10px 0}
 </style>
 </head>
 <body>
 <main>
 <h1>waymark replay report</h1>
+{{with .Run}}<p class="lead">{{.}}</p>{{end}}
 <p class="lead">{{.Protocol}}</p>
 <p class="lead">{{.Dataset}}</p>
 
+{{range .Warnings}}<p class="warn">Warning: {{.}}</p>{{end}}
 <h2>Results</h2>
 <div class="legend">{{range .Legend}}<span><span class="line" style="border-color:{{.Color}}{{if .Dash}};border-top-style:dashed{{end}}"></span>{{.Name}}</span>{{end}}</div>
 {{range .Tables}}{{template "table" .}}{{end}}
@@ -323,11 +344,13 @@ figcaption{font-size:13px;font-weight:600;color:#333;padding:2px 4px}
 <div class="charts">{{range .Curves}}<figure><figcaption>{{.Caption}}</figcaption>{{.SVG}}</figure>{{end}}</div>
 
 <h2>Cold targets</h2>
-<div class="two"><figure><figcaption>Cold next item against all queries, K = {{.MaxK}}</figcaption>{{.ColdChart}}</figure>{{template "table" .ColdTable}}</div>
+{{if .HasCold}}<div class="two"><figure><figcaption>Cold next item against all queries, K = {{.MaxK}}</figcaption>{{.ColdChart}}</figure>{{template "table" .ColdTable}}</div>
+{{else}}<p class="note">No query had a cold target: every target item had enough learned clicks when asked.</p>{{end}}
 
 <h2>Session position</h2>
-<div class="two"><figure><figcaption>HitRate@{{.MaxK}} after the session's 1st, 2nd, 3rd and later clicks</figcaption>{{.PosChart}}</figure></div>
+{{if .HasPos}}<div class="two"><figure><figcaption>HitRate@{{.MaxK}} after the session's 1st, 2nd, 3rd and later clicks</figcaption>{{.PosChart}}</figure></div>
 {{template "table" .PosTable}}
+{{else}}<p class="note">This protocol asks once per session, so there is no breakdown by session position.</p>{{end}}
 
 <h2>Significance</h2>
 {{template "table" .Signif}}

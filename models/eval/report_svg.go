@@ -4,6 +4,8 @@ import (
 	"fmt"
 	"html/template"
 	"math"
+	"sort"
+	"strconv"
 	"strings"
 )
 
@@ -33,29 +35,40 @@ const (
 	marginL, marginR, marginT, marginB = 52, 14, 14, 40
 )
 
-// niceMax rounds v up to 1, 2, 2.5 or 5 times a power of ten, so axis
-// ticks fall on round numbers.
-func niceMax(v float64) float64 {
-	if v <= 0 || math.IsNaN(v) {
-		return 1
+// niceScale returns an axis maximum at or above v and a tick step of 1, 2
+// or 5 times a power of ten, about five ticks, so that every tick label is a
+// round number ("0.2", never "0.188"; common practice in chart design).
+func niceScale(v float64) (ymax, step float64) {
+	if v <= 0 || math.IsNaN(v) || math.IsInf(v, 0) {
+		return 1, 0.2
 	}
-	p := math.Pow(10, math.Floor(math.Log10(v)))
-	for _, m := range []float64{1, 2, 2.5, 5, 10} {
-		if v <= m*p*(1+1e-12) {
-			return m * p
+	raw := v / 5
+	p := math.Pow(10, math.Floor(math.Log10(raw)))
+	step = 10 * p
+	for _, m := range []float64{1, 2, 5} {
+		if raw <= m*p*(1+1e-12) {
+			step = m * p
+			break
 		}
 	}
-	return 10 * p
+	return math.Ceil(v/step-1e-9) * step, step
+}
+
+// tickFormat writes tick labels with as many decimals as the step needs.
+func tickFormat(step float64) func(float64) string {
+	dec := max(0, int(-math.Floor(math.Log10(step)+1e-9)))
+	return func(v float64) string { return strconv.FormatFloat(v, 'f', dec, 64) }
 }
 
 func esc(s string) string { return template.HTMLEscapeString(s) }
 
 // axes draws the frame, y ticks with grid lines, and x labels.
-func axes(b *strings.Builder, ymax float64, xlabels []string, xpos func(int) float64, yfmt func(float64) string) {
+func axes(b *strings.Builder, ymax, step float64, xlabels []string, xpos func(int) float64, yfmt func(float64) string) {
 	plotH := float64(chartH - marginT - marginB)
-	for t := 0; t <= 4; t++ {
-		v := ymax * float64(t) / 4
-		y := float64(marginT) + plotH*(1-float64(t)/4)
+	ticks := int(math.Round(ymax / step))
+	for t := 0; t <= ticks; t++ {
+		v := step * float64(t)
+		y := float64(marginT) + plotH*(1-v/ymax)
 		fmt.Fprintf(b, `<line x1="%d" y1="%.1f" x2="%d" y2="%.1f" stroke="#ddd"/>`, marginL, y, chartW-marginR, y)
 		fmt.Fprintf(b, `<text x="%d" y="%.1f" text-anchor="end" font-size="11" fill="#444">%s</text>`, marginL-6, y+4, esc(yfmt(v)))
 	}
@@ -83,7 +96,7 @@ func svgOpen(b *strings.Builder, title string) {
 func lineChart(title, xname string, xlabels []string, ss []series) template.HTML {
 	var b strings.Builder
 	svgOpen(&b, title)
-	ymax := niceMax(seriesMax(ss))
+	ymax, step := niceScale(seriesMax(ss))
 	plotW := float64(chartW - marginL - marginR)
 	plotH := float64(chartH - marginT - marginB)
 	xpos := func(i int) float64 {
@@ -93,15 +106,22 @@ func lineChart(title, xname string, xlabels []string, ss []series) template.HTML
 		return float64(marginL) + 16 + (plotW-32)*float64(i)/float64(len(xlabels)-1)
 	}
 	ypos := func(v float64) float64 { return float64(marginT) + plotH*(1-v/ymax) }
-	axes(&b, ymax, xlabels, xpos, func(v float64) string { return strings.TrimRight(strings.TrimRight(fmt.Sprintf("%.3f", v), "0"), ".") })
+	axes(&b, ymax, step, xlabels, xpos, tickFormat(step))
 	fmt.Fprintf(&b, `<text x="%.1f" y="%d" text-anchor="middle" font-size="11" fill="#444">%s</text>`, float64(marginL)+plotW/2, chartH-6, esc(xname))
-	for si, s := range ss {
+	// The strongest series is drawn first and widest, each weaker one
+	// narrower on top of it, so lines with equal values stay visible as a
+	// halo and the eye lands on the best line, not on the weakest.
+	order := make([]int, len(ss))
+	for i := range order {
+		order[i] = i
+	}
+	sort.SliceStable(order, func(a, b int) bool { return seriesMean(ss[order[a]]) > seriesMean(ss[order[b]]) })
+	for rank, si := range order {
+		s := ss[si]
 		color, dash := seriesColor(si)
-		// Earlier lines are drawn wider, so a later line with the same
-		// values leaves them visible around it.
 		width := 2.0
 		if len(ss) > 1 {
-			width += 3 * float64(len(ss)-1-si) / float64(len(ss)-1)
+			width += 3 * float64(len(ss)-1-rank) / float64(len(ss)-1)
 		}
 		var pts []string
 		for i, v := range s.Values {
@@ -121,24 +141,40 @@ func lineChart(title, xname string, xlabels []string, ss []series) template.HTML
 func barChart(title string, xlabels []string, ss []series, yfmt func(float64) string) template.HTML {
 	var b strings.Builder
 	svgOpen(&b, title)
-	ymax := niceMax(seriesMax(ss))
+	ymax, step := niceScale(seriesMax(ss))
 	plotW := float64(chartW - marginL - marginR)
 	plotH := float64(chartH - marginT - marginB)
 	groupW := plotW / float64(max(1, len(xlabels)))
 	barW := groupW * 0.8 / float64(max(1, len(ss)))
 	xpos := func(i int) float64 { return float64(marginL) + groupW*(float64(i)+0.5) }
-	axes(&b, ymax, xlabels, xpos, yfmt)
+	tip := yfmt
+	if yfmt == nil {
+		yfmt, tip = tickFormat(step), fmtMetric
+	}
+	axes(&b, ymax, step, xlabels, xpos, yfmt)
 	for si, s := range ss {
 		color, _ := seriesColor(si)
 		for i, v := range s.Values {
 			h := plotH * v / ymax
 			x := float64(marginL) + groupW*float64(i) + groupW*0.1 + barW*float64(si)
 			fmt.Fprintf(&b, `<rect class="bar" x="%.1f" y="%.1f" width="%.1f" height="%.1f" fill="%s"><title>%s, %s: %s</title></rect>`,
-				x, float64(marginT)+plotH-h, max(barW-1, 1), h, color, esc(s.Name), esc(xlabels[i]), esc(yfmt(v)))
+				x, float64(marginT)+plotH-h, max(barW-1, 1), h, color, esc(s.Name), esc(xlabels[i]), esc(tip(v)))
 		}
 	}
 	b.WriteString(`</svg>`)
 	return template.HTML(b.String())
+}
+
+// seriesMean is the mean of a series' values, 0 for none.
+func seriesMean(s series) float64 {
+	if len(s.Values) == 0 {
+		return 0
+	}
+	t := 0.0
+	for _, v := range s.Values {
+		t += v
+	}
+	return t / float64(len(s.Values))
 }
 
 // seriesMax is the largest value of any series, 0 for none.

@@ -17,6 +17,58 @@ func fmtMetric(v float64) string { return strconv.FormatFloat(v, 'f', 4, 64) }
 // reads back to the same float64, as in the JSON.
 func fmtFloat(v float64) string { return strconv.FormatFloat(v, 'g', -1, 64) }
 
+// fmtP writes a p-value for people: three significant digits, and a bound
+// where the value underflowed to zero (a "0" would read as certainty).
+func fmtP(p float64) string {
+	switch {
+	case p <= 0:
+		return "< 1e-300"
+	case p < 1e-4:
+		return strconv.FormatFloat(p, 'e', 1, 64)
+	}
+	return strconv.FormatFloat(p, 'g', 3, 64)
+}
+
+// fmtDiff writes a signed difference of metrics for people: four decimals,
+// or two significant digits when four decimals would print "-0.0000".
+func fmtDiff(d float64) string {
+	switch {
+	case d == 0:
+		return "0"
+	case d > -5e-5 && d < 5e-5:
+		return strconv.FormatFloat(d, 'e', 1, 64)
+	}
+	return fmt.Sprintf("%+.4f", d)
+}
+
+// fmtSpan writes a time span in the unit a person reads it in.
+func fmtSpan(seconds float64) string {
+	switch {
+	case seconds >= 2*86400:
+		return strconv.FormatFloat(seconds/86400, 'f', 1, 64) + " days"
+	case seconds >= 2*3600:
+		return strconv.FormatFloat(seconds/3600, 'f', 1, 64) + " hours"
+	case seconds >= 120:
+		return strconv.FormatFloat(seconds/60, 'f', 1, 64) + " minutes"
+	}
+	return strconv.FormatFloat(seconds, 'f', 0, 64) + " s"
+}
+
+// RunLine sums up what produced the report in one line, "" when unknown.
+func (r *Report) RunLine() string {
+	if r.Run == nil {
+		return ""
+	}
+	s := "waymark " + r.Run.Version
+	if r.Run.Commit != "" {
+		s += " (commit " + r.Run.Commit + ")"
+	}
+	if r.Run.Command != "" {
+		s += ": " + r.Run.Command
+	}
+	return s
+}
+
 // paramString writes params as k=v pairs sorted by key.
 func paramString(p map[string]string) string {
 	keys := make([]string, 0, len(p))
@@ -33,8 +85,8 @@ func paramString(p map[string]string) string {
 
 // DatasetLine sums up the dataset in one line.
 func (s *Summary) DatasetLine() string {
-	return fmt.Sprintf("%d events, %d sessions (%d session ids), %d items, %s to %s; %d sessions of length 1, %d repeat clicks, %d bad records, %d out of order",
-		s.Events, s.Sessions, s.SessionIDs, s.Items, s.First, s.Last, s.SessionsLength1, s.Repeats, s.BadRecords, s.OutOfOrder)
+	return fmt.Sprintf("%d events, %d sessions (%d session ids), %d items, %s to %s (%s); %d sessions of length 1, %d repeat clicks, %d bad records, %d out of order",
+		s.Events, s.Sessions, s.SessionIDs, s.Items, s.First, s.Last, fmtSpan(s.SpanSeconds), s.SessionsLength1, s.Repeats, s.BadRecords, s.OutOfOrder)
 }
 
 // ProtocolLine sums up the protocol in one line.
@@ -69,6 +121,9 @@ func (p *ProtocolInfo) ProtocolLine() string {
 // comparison with the best model.
 func (r *Report) WriteTable(w io.Writer) error {
 	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', 0)
+	if l := r.RunLine(); l != "" {
+		fmt.Fprintf(tw, "run:      %s\n", l)
+	}
 	fmt.Fprintf(tw, "dataset:  %s\n", r.Dataset.DatasetLine())
 	fmt.Fprintf(tw, "protocol: %s\n", r.Protocol.ProtocolLine())
 	sc := r.Scoring
@@ -105,13 +160,16 @@ func (r *Report) WriteTable(w io.Writer) error {
 		l := m.LatencyOf()
 		fmt.Fprintf(tw, "%s\t%.4f\t%.4f", m.Name, l.P50MS, l.P99MS)
 		if s := m.Significance; s != nil {
-			fmt.Fprintf(tw, "\t%+.4f\t%.3g\t%+.4f\t%.3g\n", s.MRR.MeanDiff, s.MRR.P, s.HitRate.MeanDiff, s.HitRate.P)
+			fmt.Fprintf(tw, "\t%s\t%s\t%s\t%s\n", fmtDiff(s.MRR.MeanDiff), fmtP(s.MRR.P), fmtDiff(s.HitRate.MeanDiff), fmtP(s.HitRate.P))
 		} else {
 			fmt.Fprintf(tw, "\tbest\t\t\t\n")
 		}
 	}
 	if len(r.Models) > 1 {
 		fmt.Fprintf(tw, "\n* best by MRR@%d; p: %s\n", k, TestName)
+	}
+	for _, w := range r.Warnings {
+		fmt.Fprintf(tw, "\nwarning: %s\n", w)
 	}
 	return tw.Flush()
 }
