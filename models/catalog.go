@@ -5,6 +5,7 @@ import (
 	"fmt"
 	"slices"
 	"strings"
+	"unicode/utf8"
 )
 
 // Catalog is what a [Set] knows about items beyond clicks: whether each may
@@ -22,6 +23,7 @@ type Catalog struct {
 	// tell at once that no candidate needs the availability check.
 	unavailable int
 	cats        [][]string // per item: normalised category paths
+	titles      []string   // per item: display title, cut to maxTitleBytes
 	dirty       []ItemID
 	flag        []bool
 	decay       Decay
@@ -33,6 +35,14 @@ const (
 	stateAvailable
 	stateUnavailable
 )
+
+// hasTitle marks, in a stored entry's state byte, that the first string
+// after it is the title; entries written before titles were kept lack it.
+const hasTitle uint8 = 0x80
+
+// maxTitleBytes bounds the title kept per item: it is for people reading
+// the operator page, and memory grows with the catalogue.
+const maxTitleBytes = 120
 
 // catalogKey is the Set's storage key and spec of its catalog.
 const catalogKey = "catalog"
@@ -62,12 +72,36 @@ func (c *Catalog) ObserveItem(info *ItemInfo) {
 		st = stateAvailable
 	}
 	cats := categoryPaths(info.Attrs)
-	if c.state[info.Item] == st && slices.Equal(c.cats[info.Item], cats) {
+	title := recordTitle(info.Attrs)
+	if c.state[info.Item] == st && slices.Equal(c.cats[info.Item], cats) && c.titles[info.Item] == title {
 		return
 	}
 	c.setState(info.Item, st)
 	c.cats[info.Item] = cats
+	c.titles[info.Item] = title
 	c.markDirty(info.Item)
+}
+
+// recordTitle is a record's "title" attribute, its words joined by spaces
+// and cut at a character boundary to maxTitleBytes.
+func recordTitle(attrs map[string][]string) string {
+	t := strings.TrimSpace(strings.Join(attrs["title"], " "))
+	if len(t) <= maxTitleBytes {
+		return t
+	}
+	cut := maxTitleBytes
+	for cut > 0 && !utf8.RuneStart(t[cut]) {
+		cut--
+	}
+	return t[:cut] + "…"
+}
+
+// Title returns id's title from its catalogue record, "" when it has none.
+func (c *Catalog) Title(id ItemID) string {
+	if int(id) >= len(c.titles) {
+		return ""
+	}
+	return c.titles[id]
 }
 
 // setState sets id's state, keeping the count of unavailable items; id's
@@ -89,6 +123,7 @@ func (c *Catalog) grow(id ItemID) {
 	n := int(id) + 1
 	c.state = append(c.state, make([]uint8, n-len(c.state))...)
 	c.cats = append(c.cats, make([][]string, n-len(c.cats))...)
+	c.titles = append(c.titles, make([]string, n-len(c.titles))...)
 	c.flag = append(c.flag, make([]bool, n-len(c.flag))...)
 }
 
@@ -157,12 +192,18 @@ func (c *Catalog) decayed(landmark float64, now int64) float64 {
 func (c *Catalog) SetPrefix(prefix string) { c.prefix = prefix }
 func (c *Catalog) Prefix() string          { return c.prefix }
 
-// Flush writes each changed record as one entry: a state byte, then the
-// category paths, each as a uvarint length and its bytes.
+// Flush writes each changed record as one entry: a state byte (with
+// hasTitle set when a title follows), the title if any, then the category
+// paths; each string as a uvarint length and its bytes.
 func (c *Catalog) Flush(kv KV) error {
 	for _, id := range c.dirty {
 		c.flag[id] = false
 		buf := []byte{c.state[id]}
+		if t := c.titles[id]; t != "" {
+			buf[0] |= hasTitle
+			buf = binary.AppendUvarint(buf, uint64(len(t)))
+			buf = append(buf, t...)
+		}
 		for _, p := range c.cats[id] {
 			buf = binary.AppendUvarint(buf, uint64(len(p)))
 			buf = append(buf, p...)
@@ -178,21 +219,29 @@ func (c *Catalog) Flush(kv KV) error {
 // Load restores one entry written by Flush.
 func (c *Catalog) Load(key, val []byte) error {
 	k := key[len(c.prefix):]
-	if len(k) != 4 || len(val) < 1 || val[0] > stateUnavailable {
+	if len(k) != 4 || len(val) < 1 || val[0]&^hasTitle > stateUnavailable {
 		return fmt.Errorf("%w: catalog key %x, %d value bytes", ErrCorrupt, key, len(val))
 	}
 	id := binary.BigEndian.Uint32(k)
-	var cats []string
+	var strs []string
 	for rest := val[1:]; len(rest) > 0; {
 		n, w := binary.Uvarint(rest)
 		if w <= 0 || uint64(len(rest)-w) < n {
 			return fmt.Errorf("%w: catalog item %d: bad category path", ErrCorrupt, id)
 		}
-		cats = append(cats, string(rest[w:w+int(n)]))
+		strs = append(strs, string(rest[w:w+int(n)]))
 		rest = rest[w+int(n):]
 	}
+	var title string
+	if val[0]&hasTitle != 0 {
+		if len(strs) == 0 || len(strs[0]) > maxTitleBytes+len("…") {
+			return fmt.Errorf("%w: catalog item %d: bad title", ErrCorrupt, id)
+		}
+		title, strs = strs[0], strs[1:]
+	}
 	c.grow(id)
-	c.setState(id, val[0])
-	c.cats[id] = cats
+	c.setState(id, val[0]&^hasTitle)
+	c.cats[id] = strs
+	c.titles[id] = title
 	return nil
 }

@@ -79,6 +79,7 @@ type Server struct {
 	requests *prometheus.CounterVec
 	rejected prometheus.Counter
 	bufs     sync.Pool // *[]byte response buffers of postNext
+	hist     *history  // recent figures for the operator page's charts
 
 	servedMu    sync.Mutex
 	served      []stream.Served // records not yet on the log
@@ -96,7 +97,7 @@ const (
 // NewServer returns the HTTP API; pub may be nil for a read-only server.
 func NewServer(eng *Engine, pub Publisher, opts ServerOptions) *Server {
 	opts.validate()
-	s := &Server{opts: opts, eng: eng, pub: pub, mux: http.NewServeMux()}
+	s := &Server{opts: opts, eng: eng, pub: pub, mux: http.NewServeMux(), hist: newHistory(0, nil)}
 	s.requests = prometheus.NewCounterVec(prometheus.CounterOpts{
 		Name: "waymark_http_requests_total", Help: "HTTP requests by route and status code.",
 	}, []string{"route", "code"})
@@ -147,9 +148,15 @@ func (w *statusWriter) WriteHeader(code int) {
 }
 
 func (s *Server) route(pattern string, h http.HandlerFunc) {
+	query := strings.Contains(pattern, "/next") || strings.Contains(pattern, "/score")
 	s.mux.HandleFunc(pattern, func(w http.ResponseWriter, r *http.Request) {
 		sw := &statusWriter{ResponseWriter: w, code: http.StatusOK}
+		start := time.Now()
 		defer func() {
+			if query {
+				s.hist.observe(time.Since(start))
+			}
+			s.hist.maybeSample(s.eng.Stats, false)
 			if p := recover(); p != nil {
 				s.opts.Logger.Error("handler panic", "route", pattern, "panic", fmt.Sprint(p))
 				writeError(sw, http.StatusInternalServerError, CodeInternal, "internal error")

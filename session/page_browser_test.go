@@ -94,7 +94,7 @@ func TestPageBrowser(t *testing.T) {
 		}
 		for _, want := range []string{
 			`id="events-applied">173<`, `id="events-rejected">0<`, `id="consumer-lag">0<`, `id="items">6<`,
-			`id="answer-source">blend<`, `id="answer-known">1<`,
+			`class="answer-source">blend<`, `class="answer-known">1<`,
 			`name="session" value="A"`,
 		} {
 			if !strings.Contains(dom, want) {

@@ -151,7 +151,7 @@ func TestPageHandler(t *testing.T) {
 			check: func(t *testing.T, page string) {
 				for id, want := range map[string]string{
 					"events-applied": fmt.Sprint(pageEventCount), "events-rejected": "0", "items": "6",
-					"consumer-lag": "0", "last-sequence": fmt.Sprintf("%d / %d", pageEventCount, pageEventCount),
+					"consumer-lag": "0", "last-sequence": fmt.Sprint(pageEventCount), "stream-last": fmt.Sprint(pageEventCount),
 				} {
 					if got := statValue(page, id); got != want {
 						t.Errorf("stat %s = %q, want %q", id, got, want)
@@ -204,7 +204,7 @@ func TestPageHandler(t *testing.T) {
 		},
 		{
 			name: "session answer with features", query: "?session=A&k=3", code: 200,
-			want: []string{`id="answer-source">blend<`, `id="answer-known">1<`, `id="answer-unknown">0<`},
+			want: []string{`class="answer-source">blend<`, `class="answer-known">1<`, `class="answer-unknown">0<`},
 			check: func(t *testing.T, page string) {
 				head := page[strings.Index(page, `<div id="answer">`):]
 				for _, col := range []string{">markov<", ">sr<", ">iknn<", ">pop<"} {
@@ -242,7 +242,7 @@ func TestPageHandler(t *testing.T) {
 		},
 		{
 			name: "unknown session falls back to popularity", query: "?session=" + url.QueryEscape("never-seen, also-not"), code: 200,
-			want: []string{`id="answer-source">pop<`, `id="answer-unknown">2<`, "popularity fallback"},
+			want: []string{`class="answer-source">pop<`, `class="answer-unknown">2<`, "popularity fallback"},
 			check: func(t *testing.T, page string) {
 				if rows := tableAfter(page, `<div id="answer">`); len(rows) == 0 || rows[0][1] != "A" {
 					t.Errorf("fallback answer: %q, want A first", rows)
@@ -251,7 +251,7 @@ func TestPageHandler(t *testing.T) {
 		},
 		{
 			name: "empty session falls back to popularity", query: "?session=+,+", code: 200,
-			want: []string{`id="answer-source">pop<`, `id="answer-known">0<`},
+			want: []string{`class="answer-source">pop<`, `class="answer-known">0<`},
 		},
 		{
 			name: "keep session items", query: "?session=A&keep=on&k=1000", code: 200,
@@ -371,7 +371,7 @@ func TestPageEmptyEngine(t *testing.T) {
 		want        []string
 	}{
 		{"overview", "", []string{"no clicks yet", `id="events-applied">0<`, "none yet", "not ready: consumer lag 5 above 1"}},
-		{"session", "?session=A", []string{`id="answer-source">pop<`, "no answer: the models hold no items yet"}},
+		{"session", "?session=A", []string{`class="answer-source">pop<`, "no answer: the models hold no items yet"}},
 		{"item", "?item=A", []string{"unknown item"}},
 	}
 	for _, tt := range tests {
