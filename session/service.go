@@ -134,6 +134,9 @@ func Open(ctx context.Context, opts ServiceOptions) (_ *Service, err error) {
 		// server stops delivering for want of acks.
 		opts.Engine.FlushEvents = min(DefaultEngineOptions().FlushEvents, lim)
 	}
+	if err := checkEngineOptions(opts.Engine); err != nil {
+		return nil, err
+	}
 	s := &Service{opts: opts, log: opts.Logger, reg: prometheus.NewRegistry(), errc: make(chan error, 4)}
 	defer func() {
 		if err != nil {
