@@ -114,6 +114,7 @@ func TestUsageErrorsExit2(t *testing.T) {
 		{[]string{"frobnicate"}, `unknown command "frobnicate"`},
 		{[]string{"serve", "--bogus"}, "flag provided but not defined: -bogus"},
 		{[]string{"serve", "--log-level", "loud"}, "--log-level"},
+		{[]string{"serve", "--bootstrap", "snap.bak"}, "--bootstrap=FILE"},
 		{[]string{"send"}, "no FILE given"},
 		{[]string{"send", "--format", "parquet", "x"}, `--format "parquet"`},
 		{[]string{"send", "--batch", "0", "x"}, "--batch 0"},
@@ -158,6 +159,7 @@ func TestServeBadConfigCreatesNothing(t *testing.T) {
 		{"bad parameter", []string{"--models", "sr(windw=3)"}, "windw"},
 		{"not a blend", []string{"--blend", "markov"}, "not a blend"},
 		{"bad fresh spec", []string{"--fresh", "fresh(windw=3)"}, "windw"},
+		{"missing bootstrap file", []string{"--bootstrap=/nonexistent/waymark.snapshot"}, "BootstrapFile"},
 	}
 	for _, c := range cases {
 		t.Run(c.name, func(t *testing.T) {

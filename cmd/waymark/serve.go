@@ -11,6 +11,7 @@ import (
 	"net/http"
 	"net/http/pprof"
 	"os"
+	"strconv"
 	"strings"
 	"time"
 
@@ -53,7 +54,7 @@ type serveFlags struct {
 	readyLag uint64
 	sync     bool
 	token    string
-	boot     bool
+	boot     bootstrapFlag
 	explore  int
 	fresh    string
 	seed     uint64
@@ -100,7 +101,7 @@ func newServeFlags(name string, stderr io.Writer) *serveFlags {
 	fs.IntVar(&f.explore, "explore-every", d.Engine.ExploreEvery, "one exploration slot for fresh items per this many answers (0: off)")
 	fs.StringVar(&f.fresh, "fresh", d.Engine.Fresh, "`spec` of the fresh-item exploration model, e.g. fresh(window=48,min_impressions=20)")
 	fs.Uint64Var(&f.seed, "explore-seed", 0, "seed of the exploration draws (fixed: reproducible)")
-	fs.BoolVar(&f.boot, "bootstrap", false, "start an empty data folder from the newest snapshot in the NATS object store")
+	fs.Var(&f.boot, "bootstrap", "start an empty data folder from the newest snapshot in the NATS object store, or with --bootstrap=FILE from a file of 'waymark snapshot --out'")
 	fs.StringVar(&f.debug, "debug-addr", "", "listen `address` for Go's pprof profiles (empty: off; keep it on loopback)")
 	fs.StringVar(&f.logLevel, "log-level", "info", "log `level`: debug, info, warn, error")
 	return f
@@ -159,7 +160,7 @@ func (f *serveFlags) options(log *slog.Logger) (session.ServiceOptions, error) {
 	}
 	o.Store.SyncWrites = f.sync
 	o.Token = f.token
-	o.Bootstrap = f.boot
+	o.Bootstrap, o.BootstrapFile = f.boot.on && f.boot.file == "", f.boot.file
 	o.Logger = log
 	return o, nil
 }
@@ -171,6 +172,9 @@ func runServe(ctx context.Context, args []string, stdout, stderr io.Writer) int 
 	}
 	if err := f.layer(); err != nil {
 		return usageError(stderr, "serve", "%v", err)
+	}
+	if f.fs.NArg() > 0 {
+		return usageError(stderr, "serve", "unexpected argument %q (a snapshot file goes as --bootstrap=FILE)", f.fs.Arg(0))
 	}
 	log, err := f.logger(stderr)
 	if err != nil {
@@ -269,3 +273,33 @@ func defaultBlendName() string {
 	}
 	return m.Name()
 }
+
+// bootstrapFlag is --bootstrap: alone (or true) it starts an empty data
+// folder from the newest snapshot in the NATS object store; =FILE starts it
+// from a snapshot file. It stays a boolean flag, so that "--bootstrap"
+// alone keeps working in existing deployments.
+type bootstrapFlag struct {
+	on   bool
+	file string
+}
+
+func (b *bootstrapFlag) String() string {
+	if b == nil {
+		return "false"
+	}
+	if b.file != "" {
+		return b.file
+	}
+	return strconv.FormatBool(b.on)
+}
+
+func (b *bootstrapFlag) Set(v string) error {
+	if on, err := strconv.ParseBool(v); err == nil {
+		b.on, b.file = on, ""
+		return nil
+	}
+	b.on, b.file = true, v
+	return nil
+}
+
+func (b *bootstrapFlag) IsBoolFlag() bool { return true }

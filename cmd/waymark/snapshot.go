@@ -17,7 +17,7 @@ func runSnapshot(ctx context.Context, args []string, stdout, stderr io.Writer) i
 	addr := fs.String("http", "http://127.0.0.1:8080", "`URL` of the running service")
 	out := fs.String("out", "", "write the snapshot to this `file` instead of the NATS object store")
 	token := fs.String("auth-token", os.Getenv("WAYMARK_AUTH_TOKEN"), "bearer `token` of the service (default $WAYMARK_AUTH_TOKEN)")
-	const head = "usage: waymark snapshot [flags]\n\nAsk a running service for a consistent snapshot of its store (with the stream sequence it\nincludes). By default it goes to the NATS object store, where 'waymark serve --bootstrap'\nstarts a new replica from the newest one; --out writes it to a file instead.\n\nflags:\n"
+	const head = "usage: waymark snapshot [flags]\n\nAsk a running service for a consistent snapshot of its store (with the stream sequence it\nincludes). By default it goes to the NATS object store, where 'waymark serve --bootstrap'\nstarts a new replica from the newest one; --out writes it to a file instead, which\n'waymark serve --bootstrap=FILE' starts from.\n\nflags:\n"
 	if code, ok := parseFlags(fs, head, args, stdout, stderr); !ok {
 		return code
 	}
