@@ -202,3 +202,32 @@ func TestIngestKeysAndPopularCategory(t *testing.T) {
 		t.Errorf("unknown category: %d %+v", code, e)
 	}
 }
+
+// TestCheckKeys covers the key scanner of the ingest door on the shapes a
+// line takes: nested values and strings holding braces, escaped and
+// case-folded keys, and input that is not an object (left to the decoder).
+func TestCheckKeys(t *testing.T) {
+	cases := []struct {
+		rec     string
+		unknown string // "" when every key is known or rec is no object
+	}{
+		{`{"session":"s","item":"i","ts":1}`, ""},
+		{` { "session" : "s,}]" , "item":"i\"}","ts":"2026-01-01T00:00:00Z","kind":"view","id":"x"} `, ""},
+		{`{"Session":"s","ITEM":"i","ts":1}`, ""},
+		{`{"sess\u0069on":"s"}`, ""},
+		{`{"session":"s","knd":"purchase"}`, "knd"},
+		{`{"session":"s","extra":{"a":[1,{"b":"}"}]},"item":"i"}`, "extra"},
+		{`{"session":"s","item":"i","ts":1,"x\"y":null}`, `x"y`},
+		{`{}`, ""},
+		{`[{"knd":1}]`, ""},
+		{`not json`, ""},
+		{`{"session":`, ""},
+		{`{"session":"s" "item":"i"}`, ""},
+	}
+	for _, c := range cases {
+		got, ok := firstUnknownKey([]byte(c.rec), eventKeys)
+		if ok != (c.unknown != "") || got != c.unknown {
+			t.Errorf("%s: unknown %q (%v), want %q", c.rec, got, ok, c.unknown)
+		}
+	}
+}

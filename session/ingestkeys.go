@@ -45,12 +45,14 @@ func firstUnknownKey(b []byte, known []string) (string, bool) {
 		if end < 0 {
 			return "", false
 		}
-		var key string
-		if json.Unmarshal(b[i:end], &key) != nil {
-			return "", false
-		}
-		if !knownKey(key, known) {
-			return key, true
+		if !exactKey(b[i+1:end-1], known) { // the usual key costs no allocation
+			var key string
+			if json.Unmarshal(b[i:end], &key) != nil {
+				return "", false
+			}
+			if !knownKey(key, known) {
+				return key, true
+			}
 		}
 		i = skipSpace(b, end)
 		if i >= len(b) || b[i] != ':' {
@@ -65,6 +67,17 @@ func firstUnknownKey(b []byte, known []string) (string, bool) {
 		}
 		i++
 	}
+}
+
+// exactKey reports whether raw, a key's bytes between its quotes, is one
+// of known as written.
+func exactKey(raw []byte, known []string) bool {
+	for _, k := range known {
+		if string(raw) == k {
+			return true
+		}
+	}
+	return false
 }
 
 func knownKey(key string, known []string) bool {
