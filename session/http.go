@@ -128,9 +128,7 @@ func NewServer(eng *Engine, pub Publisher, opts ServerOptions) *Server {
 	if opts.Gatherer != nil {
 		s.mux.Handle("GET /metrics", promhttp.HandlerFor(opts.Gatherer, promhttp.HandlerOpts{}))
 	}
-	s.mux.HandleFunc("/", func(w http.ResponseWriter, r *http.Request) {
-		writeError(w, http.StatusNotFound, CodeNotFound, "no route "+r.Method+" "+r.URL.Path)
-	})
+	s.mux.HandleFunc(catchAll, s.noRoute)
 	return s
 }
 
@@ -232,19 +230,6 @@ func decodeJSONBody(w http.ResponseWriter, b []byte, v any) bool {
 		return false
 	}
 	return true
-}
-
-// unmarshalBody decodes b, one JSON value with only whitespace after it,
-// into v with encoding/json.
-func unmarshalBody(b []byte, v any) error {
-	dec := json.NewDecoder(bytes.NewReader(b))
-	if err := dec.Decode(v); err != nil {
-		return err
-	}
-	if len(bytes.TrimSpace(b[dec.InputOffset():])) > 0 { // dec.More misses a trailing } or ]
-		return errors.New("more than one JSON value")
-	}
-	return nil
 }
 
 // parseK reads k from a query string value ("" gives the default).
@@ -572,6 +557,15 @@ func (s *Server) popular(w http.ResponseWriter, r *http.Request) {
 		writeError(w, http.StatusBadRequest, CodeInvalidParam, err.Error())
 		return
 	}
+	if c := r.URL.Query().Get("category"); c != "" {
+		items, err := s.eng.PopularIn(k, c)
+		if err != nil {
+			writeError(w, http.StatusBadRequest, CodeInvalidParam, strings.TrimPrefix(err.Error(), "session: "))
+			return
+		}
+		writeJSON(w, http.StatusOK, popularReply{Items: items})
+		return
+	}
 	writeJSON(w, http.StatusOK, popularReply{Items: s.eng.Popular(k)})
 }
 
@@ -688,6 +682,9 @@ func splitBatch(body []byte, f func(n int, rec []byte)) error {
 func (s *Server) postEvents(w http.ResponseWriter, r *http.Request) {
 	var evs []stream.Event
 	s.ingest(w, r, func(rec []byte) error {
+		if err := checkKeys(rec, eventKeys); err != nil {
+			return err
+		}
 		ev, err := stream.DecodeJSON(rec)
 		if err == nil {
 			evs = append(evs, ev)
@@ -699,6 +696,9 @@ func (s *Server) postEvents(w http.ResponseWriter, r *http.Request) {
 func (s *Server) postItems(w http.ResponseWriter, r *http.Request) {
 	var recs []stream.ItemRecord
 	s.ingest(w, r, func(rec []byte) error {
+		if err := checkKeys(rec, itemKeys); err != nil {
+			return err
+		}
 		it, err := stream.DecodeItemJSON(rec)
 		if err == nil {
 			recs = append(recs, it)

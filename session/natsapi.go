@@ -64,7 +64,7 @@ func decodeNATS(r micro.Request, v any) bool {
 		respondNATS(r, nil, &apiError{Code: CodeBodyTooLarge, Message: "request exceeds 10 MiB", status: 413})
 		return false
 	}
-	if err := json.Unmarshal(r.Data(), v); err != nil {
+	if err := unmarshalBody(r.Data(), v); err != nil {
 		respondNATS(r, nil, &apiError{Code: CodeInvalidJSON, Message: "body: " + err.Error(), status: 400})
 		return false
 	}

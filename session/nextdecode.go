@@ -22,15 +22,14 @@ import (
 // It takes an object of the fields of nextBody, spelled exactly as in
 // wire.go, once each, with strings (escapes included), integers for k and
 // timeout_ms, true or false for keep_session_items, arrays of strings for
-// the lists, an object for prefer and null for any of them; other keys with
-// a string, number, true, false or null value are ignored, as
-// encoding/json ignores them; only JSON whitespace may follow. It bails on
-// a key that is a field name in another case or has a non-ASCII byte or an
-// escape (encoding/json matches keys case-insensitively, Unicode folds
-// included), a repeated field (encoding/json merges or reuses), null in an
-// array, a number with a fraction or an exponent or more than 18 digits, an
-// object or array under an ignored key, and of course on malformed JSON and
-// on any value of the wrong type. TestNextDecodeMatchesEncodingJSON and
+// the lists, an object for prefer and null for any of them; only JSON
+// whitespace may follow. It bails on any other key (unmarshalBody refuses
+// unknown keys and names them), on a key that is a field name in another
+// case or has a non-ASCII byte or an escape (encoding/json matches keys
+// case-insensitively, Unicode folds included), a repeated field
+// (encoding/json merges or reuses), null in an array, a number with a
+// fraction or an exponent or more than 18 digits, and of course on
+// malformed JSON and on any value of the wrong type. TestNextDecodeMatchesEncodingJSON and
 // FuzzNextBodyDecode hold it to encoding/json.
 func decodeNextFast(data []byte) (body nextBody, ok bool) {
 	if len(data) > math.MaxInt32/4 { // offsets are int32, and U+FFFD triples a byte
@@ -265,7 +264,9 @@ func (d *nextDecoder) object(f *nextFields, prefer bool) bool {
 			return false
 		}
 		field := nextField(key, prefer)
-		if field == fldBail {
+		if field == fldBail || field == fldUnknown {
+			// encoding/json, told to refuse unknown keys, names the key in
+			// its error: the fast path takes only bodies it would accept.
 			return false
 		}
 		if field != fldUnknown {

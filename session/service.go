@@ -48,7 +48,11 @@ type ServiceOptions struct {
 	// an empty data folder before starting, so a new replica replays only
 	// what came after the snapshot.
 	Bootstrap bool
-	Logger    *slog.Logger
+	// BootstrapFile, when set, loads a snapshot file written by `waymark
+	// snapshot --out` (GET /v1/admin/snapshot?to=download) into an empty
+	// data folder instead; the stream must still hold what came after it.
+	BootstrapFile string
+	Logger        *slog.Logger
 }
 
 // Version is the service version reported to NATS service discovery.
@@ -134,6 +138,14 @@ func Open(ctx context.Context, opts ServiceOptions) (_ *Service, err error) {
 		// server stops delivering for want of acks.
 		opts.Engine.FlushEvents = min(DefaultEngineOptions().FlushEvents, lim)
 	}
+	if err := checkEngineOptions(opts.Engine); err != nil {
+		return nil, err
+	}
+	if opts.BootstrapFile != "" {
+		if _, err := os.Stat(opts.BootstrapFile); err != nil {
+			return nil, fmt.Errorf("%w: BootstrapFile: %w", ErrBadOption, err)
+		}
+	}
 	s := &Service{opts: opts, log: opts.Logger, reg: prometheus.NewRegistry(), errc: make(chan error, 4)}
 	defer func() {
 		if err != nil {
@@ -176,7 +188,7 @@ func Open(ctx context.Context, opts ServiceOptions) (_ *Service, err error) {
 	if err := s.bus.EnsureStreams(ctx); err != nil {
 		return nil, err
 	}
-	if opts.Bootstrap {
+	if opts.Bootstrap || opts.BootstrapFile != "" {
 		if err := s.bootstrap(ctx); err != nil {
 			return nil, err
 		}
@@ -256,6 +268,9 @@ func (s *Service) bootstrap(ctx context.Context) error {
 		s.log.Info("bootstrap skipped: the data folder already holds state", "seq", cp.Seq)
 		return nil
 	}
+	if s.opts.BootstrapFile != "" {
+		return s.bootstrapFile(ctx, s.opts.BootstrapFile)
+	}
 	info, r, err := s.bus.LatestSnapshot(ctx)
 	if errors.Is(err, stream.ErrNoSnapshot) {
 		s.log.Warn("bootstrap: no snapshot in the object store; replaying the whole stream")
@@ -270,6 +285,25 @@ func (s *Service) bootstrap(ctx context.Context) error {
 		return fmt.Errorf("bootstrap from %s: %w", info.Name, err)
 	}
 	s.log.Info("bootstrapped from snapshot", "snapshot", info.Name, "seq", info.Seq, "bytes", info.Bytes, "took", time.Since(start).Round(time.Millisecond))
+	return nil
+}
+
+// bootstrapFile restores a snapshot file into the empty store.
+func (s *Service) bootstrapFile(ctx context.Context, path string) error {
+	f, err := os.Open(path)
+	if err != nil {
+		return fmt.Errorf("bootstrap: %w", err)
+	}
+	defer f.Close()
+	start := time.Now()
+	if err := s.st.Restore(ctx, f); err != nil {
+		return fmt.Errorf("bootstrap from %s: %w", path, err)
+	}
+	cp, err := s.st.Checkpoint()
+	if err != nil {
+		return err
+	}
+	s.log.Info("bootstrapped from snapshot file", "file", path, "seq", cp.Seq, "took", time.Since(start).Round(time.Millisecond))
 	return nil
 }
 

@@ -4,7 +4,6 @@ import (
 	"bytes"
 	"context"
 	"encoding/json"
-	"errors"
 	"flag"
 	"fmt"
 	"io"
@@ -21,26 +20,17 @@ import (
 
 func runDemo(ctx context.Context, args []string, stdout, stderr io.Writer) int {
 	fs := flag.NewFlagSet("demo", flag.ContinueOnError)
-	fs.SetOutput(stderr)
 	keep := fs.Bool("keep", false, "keep the service running after the tour (Ctrl-C stops it)")
 	httpAddr := fs.String("http", "127.0.0.1:0", "HTTP listen `address` (port 0 picks a free one)")
 	natsAddr := fs.String("nats-listen", "127.0.0.1:-1", "embedded NATS listen `address` (port -1 picks a free one)")
-	days := fs.Int("days", 3, "simulated days of traffic")
-	sessions := fs.Int("sessions", 1500, "visitor sessions per simulated day")
-	seed := fs.Uint64("seed", 1, "random seed of the scenario")
-	fs.Usage = func() {
-		fmt.Fprintln(fs.Output(), "usage: waymark demo [flags]\n\nRun an invented shop end to end: generate a catalogue and visitor sessions, start the\nservice on the embedded NATS server in a temporary folder, publish the stream, and show\nwhat visitors get.\n\nflags:")
-		fs.PrintDefaults()
-	}
-	if err := fs.Parse(args); err != nil {
-		if errors.Is(err, flag.ErrHelp) {
-			return 0
-		}
-		return 2
+	days := fs.Int("days", 3, "simulated `days` of traffic")
+	sessions := fs.Int("sessions", 1500, "visitor `sessions` per simulated day")
+	seed := fs.Uint64("seed", 1, "random `seed` of the scenario")
+	if code, ok := parseFlags(fs, demoUsage, args, stdout, stderr); !ok {
+		return code
 	}
 	if *days < 1 || *sessions < 10 {
-		fmt.Fprintln(stderr, "waymark demo: --days must be >= 1 and --sessions >= 10")
-		return 2
+		return usageError(stderr, "demo", "--days must be >= 1 and --sessions >= 10")
 	}
 	if err := demo(ctx, stdout, stderr, *keep, *httpAddr, *natsAddr, demoshop.Options{Seed: *seed, Days: *days, Sessions: *sessions}); err != nil {
 		fmt.Fprintln(stderr, "waymark demo:", err)
@@ -48,6 +38,16 @@ func runDemo(ctx context.Context, args []string, stdout, stderr io.Writer) int {
 	}
 	return 0
 }
+
+const demoUsage = `usage: waymark demo [flags]
+
+Run an invented shop end to end: generate a catalogue and visitor sessions, start the
+service on the embedded NATS server in a temporary folder, publish the stream, and show
+what visitors get. The first run compiles the program (go run), which takes a few minutes
+with empty Go caches.
+
+flags:
+`
 
 func demo(ctx context.Context, out, stderr io.Writer, keep bool, httpAddr, natsAddr string, so demoshop.Options) error {
 	sc := demoshop.Generate(so)
@@ -97,6 +97,10 @@ func demo(ctx context.Context, out, stderr io.Writer, keep bool, httpAddr, natsA
 		}
 		path = append(path, res.Items[0].Item)
 	}
+	fmt.Fprintln(out, "Each feature is one signal's score divided by its best for this query (0 to 1); the score is\n"+
+		"their weighted sum (weight 1 each, pop 0.1, content's weight shrinking as items gather clicks),\n"+
+		"so at most about 5.1 here: it ranks items within one answer, it is not a probability.")
+	fmt.Fprintln(out)
 	var fresh session.NextResult
 	if err := c.get("/v1/sessions/first-time-visitor/next?k=5", &fresh); err != nil {
 		return err

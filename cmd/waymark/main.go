@@ -32,11 +32,11 @@ type command struct {
 func commands() []command {
 	return []command{
 		{"serve", "run the service: learn from the bus, answer over HTTP", runServe},
-		{"send", "publish a click log (JSON lines or CSV, optionally gzip) to the bus", runSend},
+		{"send", "publish a click log (JSON lines, CSV or an open dataset; gzip) to the bus", runSend},
 		{"replay", "evaluate models offline by replaying a click log", runReplay},
 		{"snapshot", "store a consistent snapshot of a running service for new replicas", runSnapshot},
 		{"priors", "export item-item statistics, or import them into a new site", runPriors},
-		{"demo", "run an invented shop end to end on the embedded default", runDemo},
+		{"demo", "run an invented shop end to end (embedded NATS, temporary folder)", runDemo},
 	}
 }
 
@@ -62,7 +62,7 @@ func run(ctx context.Context, args []string, stdout, stderr io.Writer) int {
 		return 2
 	}
 	switch args[0] {
-	case "-h", "--help", "help":
+	case "-h", "-help", "--help", "help":
 		usage(stdout)
 		return 0
 	}

@@ -3,7 +3,6 @@ package main
 import (
 	"context"
 	"encoding/json"
-	"errors"
 	"flag"
 	"fmt"
 	"io"
@@ -17,11 +16,8 @@ import (
 // runPriors exports a running service's learned neighbours, or imports
 // such an export into another deployment through an id mapping.
 func runPriors(ctx context.Context, args []string, stdout, stderr io.Writer) int {
-	usage := func(w io.Writer) {
-		fmt.Fprintln(w, "usage: waymark priors export [flags]\n       waymark priors import [flags] FILE\n\nexport writes a running service's item-item statistics in the priors format (stream/FORMAT.md);\nimport publishes them to another deployment's bus through an id mapping, scaled by a weight.\nThe new site then answers from its first event; the priors fade as local clicks arrive.\nRun 'waymark priors export --help' or 'waymark priors import --help' for flags.")
-	}
 	if len(args) == 0 {
-		usage(stderr)
+		fmt.Fprint(stderr, priorsUsage)
 		return 2
 	}
 	switch args[0] {
@@ -29,26 +25,35 @@ func runPriors(ctx context.Context, args []string, stdout, stderr io.Writer) int
 		return priorsExport(ctx, args[1:], stdout, stderr)
 	case "import":
 		return priorsImport(ctx, args[1:], stdout, stderr)
-	case "-h", "--help", "help":
-		usage(stdout)
+	case "-h", "-help", "--help", "help":
+		fmt.Fprint(stdout, priorsUsage)
 		return 0
 	}
 	fmt.Fprintf(stderr, "waymark priors: unknown subcommand %q\n", args[0])
-	usage(stderr)
+	fmt.Fprint(stderr, priorsUsage)
 	return 2
 }
 
+const priorsUsage = `usage: waymark priors export [flags]
+       waymark priors import [flags] FILE
+
+export writes a running service's item-item statistics in the priors format (stream/FORMAT.md);
+import publishes them to another deployment's bus through an id mapping, scaled by a weight.
+The new site then answers from its first event; the priors fade as local clicks arrive.
+Run 'waymark priors export --help' or 'waymark priors import --help' for flags.
+`
+
 func priorsExport(ctx context.Context, args []string, stdout, stderr io.Writer) int {
 	fs := flag.NewFlagSet("priors export", flag.ContinueOnError)
-	fs.SetOutput(stderr)
 	addr := fs.String("http", "http://127.0.0.1:8080", "`URL` of the running service")
 	out := fs.String("out", "", "output `file` (default standard output)")
 	token := fs.String("auth-token", os.Getenv("WAYMARK_AUTH_TOKEN"), "bearer `token` of the service (default $WAYMARK_AUTH_TOKEN)")
-	if err := fs.Parse(args); err != nil {
-		if errors.Is(err, flag.ErrHelp) {
-			return 0
-		}
-		return 2
+	const head = "usage: waymark priors export [flags]\n\nWrite a running service's learned item-item statistics (its neighbour lists) in the\npriors format (stream/FORMAT.md), for 'waymark priors import' on a new site.\n\nflags:\n"
+	if code, ok := parseFlags(fs, head, args, stdout, stderr); !ok {
+		return code
+	}
+	if fs.NArg() != 0 {
+		return usageError(stderr, "priors export", "unexpected argument %q (the output file goes with --out)", fs.Arg(0))
 	}
 	resp, code := adminCall(ctx, "GET", *addr+"/v1/admin/priors", *token, "waymark priors export", stderr)
 	if resp == nil {
@@ -79,24 +84,25 @@ func priorsExport(ctx context.Context, args []string, stdout, stderr io.Writer) 
 func priorsImport(ctx context.Context, args []string, stdout, stderr io.Writer) int {
 	d := stream.DefaultBusOptions()
 	fs := flag.NewFlagSet("priors import", flag.ContinueOnError)
-	fs.SetOutput(stderr)
 	url := fs.String("nats", "nats://127.0.0.1:4222", "NATS `URL` of the deployment that imports")
 	creds := fs.String("nats-creds", "", "NATS credentials `file`")
 	streamName := fs.String("stream", d.Stream, "JetStream stream `name`")
 	control := fs.String("control-subject", d.ControlSubject, "control `subject`")
 	mapFile := fs.String("map", "", "CSV `file` of from,to item ids (a header line is allowed); empty keeps ids as they are")
-	unmapped := fs.String("unmapped", "drop", "items missing from the map: drop or keep")
-	weight := fs.Float64("weight", 0.5, "scale of the imported weights (the priors' share next to local evidence)")
-	models := fs.String("models", "", "comma-separated exporting models to take (default all), e.g. iknn,sr")
-	if err := fs.Parse(args); err != nil {
-		if errors.Is(err, flag.ErrHelp) {
-			return 0
-		}
-		return 2
+	unmapped := fs.String("unmapped", "drop", "items missing from the map: `drop|keep`")
+	weight := fs.Float64("weight", 0.5, "`scale` of the imported weights (the priors' share next to local evidence)")
+	models := fs.String("models", "", "comma-separated exporting `models` to take (default all), e.g. iknn,sr")
+	const head = "usage: waymark priors import [flags] FILE\n\nPublish a priors export (stream/FORMAT.md) to this deployment's bus through an id\nmapping, scaled by --weight; every replica applies it from the log.\n\nflags:\n"
+	if code, ok := parseFlags(fs, head, args, stdout, stderr); !ok {
+		return code
 	}
-	if fs.NArg() != 1 || !(*weight > 0) || (*unmapped != "drop" && *unmapped != "keep") {
-		fmt.Fprintln(stderr, "usage: waymark priors import [--map FILE] [--weight W] [--unmapped drop|keep] FILE")
-		return 2
+	switch {
+	case fs.NArg() != 1:
+		return usageError(stderr, "priors import", "give exactly one priors FILE (got %d arguments)", fs.NArg())
+	case !(*weight > 0):
+		return usageError(stderr, "priors import", "--weight %g must be above 0", *weight)
+	case *unmapped != "drop" && *unmapped != "keep":
+		return usageError(stderr, "priors import", "--unmapped %q must be drop or keep", *unmapped)
 	}
 	o := session.PriorsImport{KeepUnmapped: *unmapped == "keep", Weight: *weight, Models: session.ParseModelList(*models)}
 	if *mapFile != "" {

@@ -70,8 +70,7 @@ func runReplay(ctx context.Context, args []string, stdout, stderr io.Writer) int
 	kd := eval.DefaultKFoldOptions()
 	var f replayFlags
 	fs := flag.NewFlagSet("replay", flag.ContinueOnError)
-	fs.SetOutput(stderr)
-	fs.StringVar(&f.format, "format", dataset.FormatAuto, "input `format`: auto, events, msnbc, eshop")
+	fs.StringVar(&f.format, "format", dataset.FormatAuto, "input `format`: "+strings.Join(dataset.Formats(), ", "))
 	fs.BoolVar(&f.strict, "strict-order", false, "refuse input whose event times go back instead of sorting it")
 	fs.BoolVar(&f.catalog, "catalog", true, "apply the catalogue records the sources carry (stream catalogue subject, dataset item attributes)")
 	fs.StringVar(&f.natsURL, "nats", "", "NATS `URL` to replay a stream range from (instead of files)")
@@ -114,23 +113,10 @@ func runReplay(ctx context.Context, args []string, stdout, stderr io.Writer) int
 	fs.StringVar(&f.htmlOut, "html", "", "write a self-contained HTML report to `file`")
 	fs.BoolVar(&f.timings, "timings", false, "put query latency (wall time) into the JSON, CSV and HTML too")
 	fs.BoolVar(&f.quiet, "quiet", false, "no table on standard output, no progress bar")
-	fs.Usage = func() {
-		fmt.Fprint(fs.Output(), replayUsage)
-		fs.PrintDefaults()
+	if code, ok := parseFlags(fs, replayUsage, args, stdout, stderr); !ok {
+		return code
 	}
-	if err := fs.Parse(args); err != nil {
-		if errors.Is(err, flag.ErrHelp) {
-			fs.SetOutput(stdout)
-			fs.Usage()
-			return 0
-		}
-		return 2
-	}
-	usageErr := func(format string, a ...any) int {
-		fmt.Fprintf(stderr, "waymark replay: "+format+"\n", a...)
-		fmt.Fprintln(stderr, "run 'waymark replay --help' for usage")
-		return 2
-	}
+	usageErr := func(format string, a ...any) int { return usageError(stderr, "replay", format, a...) }
 	if (fs.NArg() == 0) == (f.natsURL == "") {
 		return usageErr("give event files, or --nats with --stream, not both")
 	}

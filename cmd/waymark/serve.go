@@ -3,6 +3,7 @@ package main
 import (
 	"context"
 	"encoding/json"
+	"errors"
 	"flag"
 	"fmt"
 	"io"
@@ -10,6 +11,7 @@ import (
 	"net/http"
 	"net/http/pprof"
 	"os"
+	"strconv"
 	"strings"
 	"time"
 
@@ -52,7 +54,7 @@ type serveFlags struct {
 	readyLag uint64
 	sync     bool
 	token    string
-	boot     bool
+	boot     bootstrapFlag
 	explore  int
 	fresh    string
 	seed     uint64
@@ -82,7 +84,7 @@ func newServeFlags(name string, stderr io.Writer) *serveFlags {
 	fs.Int64Var(&f.maxBytes, "stream-max-bytes", 0, "retention of the events stream in bytes (0: no limit)")
 	fs.Int64Var(&f.memtable, "store-memtable-mib", d.Store.MemTableSize>>20, "Badger memtable size in MiB: memory use against the largest flush that fits one transaction")
 	fs.StringVar(&f.dlq, "dead-letter-subject", d.Bus.DeadLetterSubject, "`subject` rejected messages are copied to")
-	fs.StringVar(&f.blend, "blend", models.DefaultBlendSpec, "blend `spec` that answers queries, e.g. blend(markov=1,sr=1,iknn=1,pop=0.1)")
+	fs.StringVar(&f.blend, "blend", models.DefaultBlendSpec, "blend `spec` that answers queries (see \"models\" above)")
 	fs.StringVar(&f.models, "models", "", "extra model `specs` to learn, comma-separated")
 	fs.DurationVar(&f.halfLife, "half-life", models.DefaultHalfLife, "decay half-life of every count, in event time")
 	fs.IntVar(&f.window, "window", d.Engine.Pipeline.Tracker.Window, "recent clicks kept per session")
@@ -99,7 +101,7 @@ func newServeFlags(name string, stderr io.Writer) *serveFlags {
 	fs.IntVar(&f.explore, "explore-every", d.Engine.ExploreEvery, "one exploration slot for fresh items per this many answers (0: off)")
 	fs.StringVar(&f.fresh, "fresh", d.Engine.Fresh, "`spec` of the fresh-item exploration model, e.g. fresh(window=48,min_impressions=20)")
 	fs.Uint64Var(&f.seed, "explore-seed", 0, "seed of the exploration draws (fixed: reproducible)")
-	fs.BoolVar(&f.boot, "bootstrap", false, "start an empty data folder from the newest snapshot in the NATS object store")
+	fs.Var(&f.boot, "bootstrap", "start an empty data folder from the newest snapshot in the NATS object store, or with --bootstrap=FILE from a file of 'waymark snapshot --out'")
 	fs.StringVar(&f.debug, "debug-addr", "", "listen `address` for Go's pprof profiles (empty: off; keep it on loopback)")
 	fs.StringVar(&f.logLevel, "log-level", "info", "log `level`: debug, info, warn, error")
 	return f
@@ -110,6 +112,12 @@ func (f *serveFlags) parse(args []string) error {
 	if err := f.fs.Parse(args); err != nil {
 		return err
 	}
+	return f.layer()
+}
+
+// layer fills the flags the command line left unset from the environment
+// (WAYMARK_*) and the config file.
+func (f *serveFlags) layer() error {
 	cfg := f.config
 	if cfg == "" {
 		cfg = os.Getenv(flagconf.EnvName("WAYMARK_", "config"))
@@ -152,33 +160,29 @@ func (f *serveFlags) options(log *slog.Logger) (session.ServiceOptions, error) {
 	}
 	o.Store.SyncWrites = f.sync
 	o.Token = f.token
-	o.Bootstrap = f.boot
+	o.Bootstrap, o.BootstrapFile = f.boot.on && f.boot.file == "", f.boot.file
 	o.Logger = log
 	return o, nil
 }
 
 func runServe(ctx context.Context, args []string, stdout, stderr io.Writer) int {
 	f := newServeFlags("serve", stderr)
-	f.fs.Usage = func() {
-		fmt.Fprintln(f.fs.Output(), "usage: waymark serve [flags]\n\nLearn from click events on NATS JetStream and answer next-item queries over HTTP.\nEvery flag can also come from WAYMARK_<FLAG> (e.g. WAYMARK_HALF_LIFE) or the --config file.\n\nflags:")
-		f.fs.PrintDefaults()
+	if code, ok := parseFlags(f.fs, serveUsage(), args, stdout, stderr); !ok {
+		return code
 	}
-	if err := f.parse(args); err != nil {
-		if err == flag.ErrHelp {
-			return 0
-		}
-		fmt.Fprintln(stderr, "waymark serve:", err)
-		return 2
+	if err := f.layer(); err != nil {
+		return usageError(stderr, "serve", "%v", err)
+	}
+	if f.fs.NArg() > 0 {
+		return usageError(stderr, "serve", "unexpected argument %q (a snapshot file goes as --bootstrap=FILE)", f.fs.Arg(0))
 	}
 	log, err := f.logger(stderr)
 	if err != nil {
-		fmt.Fprintln(stderr, "waymark serve:", err)
-		return 2
+		return usageError(stderr, "serve", "%v", err)
 	}
 	opts, err := f.options(log)
 	if err != nil {
-		fmt.Fprintln(stderr, "waymark serve:", err)
-		return 2
+		return usageError(stderr, "serve", "%v", err)
 	}
 	eff, _ := json.Marshal(flagconf.Effective(f.fs, "nats-creds", "nats-tls-key", "auth-token"))
 	log.Info("effective config", "config", string(eff))
@@ -192,6 +196,10 @@ func runServe(ctx context.Context, args []string, stdout, stderr io.Writer) int 
 		}()
 	}
 	svc, err := session.Open(ctx, opts)
+	if errors.Is(err, session.ErrBadOption) || errors.Is(err, models.ErrBadSpec) || errors.Is(err, models.ErrUnknownModel) {
+		// A configuration error, found before anything was created.
+		return usageError(stderr, "serve", "%v", err)
+	}
 	if err != nil {
 		log.Error("start failed", "err", err)
 		return 1
@@ -212,3 +220,86 @@ func runServe(ctx context.Context, args []string, stdout, stderr io.Writer) int 
 	}
 	return code
 }
+
+// serveUsage is serve's help above the flags: what it does, where
+// configuration comes from, and the model specs --blend and --models take,
+// with the default blend written out in full (the name "blend" alone hides
+// that it includes content and prior, which an explicit blend(...) drops).
+func serveUsage() string {
+	var b strings.Builder
+	b.WriteString(`usage: waymark serve [flags]
+
+Learn from click events on NATS JetStream and answer next-item queries over HTTP.
+Every flag can also come from WAYMARK_<FLAG> (e.g. WAYMARK_HALF_LIFE) or the --config
+file (a JSON object whose keys are the flag names); the command line wins, then the
+environment, then the file.
+
+models (--blend answers queries; --models learns more specs beside it; replay takes the same):
+`)
+	for _, m := range modelHelp {
+		fmt.Fprintf(&b, "  %-30s %s\n", m.spec, m.what)
+	}
+	fmt.Fprintf(&b, `
+The default --blend %q is %s:
+each signal's scores divided by its best, summed with the weights; content backs off as
+items gather clicks. An explicit blend(...) uses only the parts it names (and pop=%g
+unless it gives pop): blend(markov=1,sr=1,iknn=1) has no content or prior signal.
+
+flags:
+`, models.DefaultBlendSpec, defaultBlendName(), models.DefaultPopWeight)
+	return b.String()
+}
+
+// modelHelp describes each model spec name, with its main parameters and
+// their defaults (models/set.go and models/set_coldstart.go build them).
+var modelHelp = []struct{ spec, what string }{
+	{"pop", "decayed popularity"},
+	{"markov", "first-order transitions"},
+	{"sr(window=5)", "Sequential Rules: weight 1/gap within window steps"},
+	{"iknn(span=1,shrink=0,covis=0)", "item-kNN: cosine over session co-visitation"},
+	{"sknn, vsknn, vstan", "session-kNN, with position weights (V-SKNN), with decays (V-STAN)"},
+	{"content", "TF-IDF cosine over catalogue attributes: neighbours of unclicked items"},
+	{"fresh(window=48)", "Thompson sampling over impressions of young items (--fresh)"},
+	{"trending(short=6,long=168)", "popularity and trend per context (empty sessions)"},
+	{"prior(n0=20)", "imported item-item statistics, fading as local clicks arrive"},
+	{"blend(NAME=WEIGHT,...)", "weighted sum of the named signals, each divided by its best"},
+}
+
+// defaultBlendName writes the default blend out with every part and weight.
+func defaultBlendName() string {
+	m, err := models.NewSet(models.DefaultSetOptions()).Get(models.DefaultBlendSpec)
+	if err != nil {
+		return models.DefaultBlendSpec
+	}
+	return m.Name()
+}
+
+// bootstrapFlag is --bootstrap: alone (or true) it starts an empty data
+// folder from the newest snapshot in the NATS object store; =FILE starts it
+// from a snapshot file. It stays a boolean flag, so that "--bootstrap"
+// alone keeps working in existing deployments.
+type bootstrapFlag struct {
+	on   bool
+	file string
+}
+
+func (b *bootstrapFlag) String() string {
+	if b == nil {
+		return "false"
+	}
+	if b.file != "" {
+		return b.file
+	}
+	return strconv.FormatBool(b.on)
+}
+
+func (b *bootstrapFlag) Set(v string) error {
+	if on, err := strconv.ParseBool(v); err == nil {
+		b.on, b.file = on, ""
+		return nil
+	}
+	b.on, b.file = true, v
+	return nil
+}
+
+func (b *bootstrapFlag) IsBoolFlag() bool { return true }

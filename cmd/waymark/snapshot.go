@@ -2,7 +2,6 @@ package main
 
 import (
 	"context"
-	"errors"
 	"flag"
 	"fmt"
 	"io"
@@ -15,23 +14,15 @@ import (
 // the NATS object store, where `serve --bootstrap` finds it, or into a file.
 func runSnapshot(ctx context.Context, args []string, stdout, stderr io.Writer) int {
 	fs := flag.NewFlagSet("snapshot", flag.ContinueOnError)
-	fs.SetOutput(stderr)
 	addr := fs.String("http", "http://127.0.0.1:8080", "`URL` of the running service")
 	out := fs.String("out", "", "write the snapshot to this `file` instead of the NATS object store")
 	token := fs.String("auth-token", os.Getenv("WAYMARK_AUTH_TOKEN"), "bearer `token` of the service (default $WAYMARK_AUTH_TOKEN)")
-	fs.Usage = func() {
-		fmt.Fprintln(fs.Output(), "usage: waymark snapshot [flags]\n\nAsk a running service for a consistent snapshot of its store (with the stream sequence it\nincludes). By default it goes to the NATS object store, where 'waymark serve --bootstrap'\nstarts a new replica from the newest one; --out writes it to a file instead.\n\nflags:")
-		fs.PrintDefaults()
-	}
-	if err := fs.Parse(args); err != nil {
-		if errors.Is(err, flag.ErrHelp) {
-			return 0
-		}
-		return 2
+	const head = "usage: waymark snapshot [flags]\n\nAsk a running service for a consistent snapshot of its store (with the stream sequence it\nincludes). By default it goes to the NATS object store, where 'waymark serve --bootstrap'\nstarts a new replica from the newest one; --out writes it to a file instead, which\n'waymark serve --bootstrap=FILE' starts from.\n\nflags:\n"
+	if code, ok := parseFlags(fs, head, args, stdout, stderr); !ok {
+		return code
 	}
 	if fs.NArg() != 0 {
-		fs.Usage()
-		return 2
+		return usageError(stderr, "snapshot", "unexpected argument %q", fs.Arg(0))
 	}
 	to := "bus"
 	if *out != "" {

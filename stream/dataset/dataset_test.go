@@ -261,6 +261,43 @@ func TestOpenDetectsFormat(t *testing.T) {
 	}
 }
 
+// TestOpenForcedEventFormats checks that "csv" and "ndjson" read the
+// project's event formats from files whose names say nothing (standard
+// input saved as clicks.txt, an export called data.log), where "events"
+// decides by the name and reads JSON lines.
+func TestOpenForcedEventFormats(t *testing.T) {
+	dir := t.TempDir()
+	cases := []struct {
+		name, format, body string
+	}{
+		{"clicks.txt", FormatCSV, "session,item,ts\ns,x,1767225600000\ns,y,1767225601000\n"},
+		{"export.log", FormatNDJSON, `{"session":"s","item":"x","ts":1767225600000}` + "\n" + `{"session":"s","item":"y","ts":1767225601000}` + "\n"},
+		{"gz.bin", FormatCSV, "session,item,ts\ns,x,1767225600000\ns,y,1767225601000\n"},
+	}
+	for _, c := range cases {
+		t.Run(c.name, func(t *testing.T) {
+			p := filepath.Join(dir, c.name)
+			if c.name == "gz.bin" {
+				writeGzip(t, p, c.body)
+			} else if err := os.WriteFile(p, []byte(c.body), 0o644); err != nil {
+				t.Fatal(err)
+			}
+			f, err := Open(p, c.format)
+			if err != nil {
+				t.Fatal(err)
+			}
+			defer f.Close()
+			if f.Format() != c.format {
+				t.Errorf("format %s, want %s", f.Format(), c.format)
+			}
+			evs, bad := readAll(t, f)
+			if len(evs) != 2 || len(bad) != 0 {
+				t.Errorf("%d events, bad %v; want 2 and none", len(evs), bad)
+			}
+		})
+	}
+}
+
 // sharedData returns the path of an open dataset file beside the project
 // (../shared/data from the project root), or skips the test.
 func sharedData(t *testing.T, rel string) string {

@@ -22,7 +22,9 @@
 //
 // Open picks the reader for a file by its content (format "auto"), or by
 // name: "msnbc", "eshop", or "events" for the project's own JSON lines and
-// CSV (stream.OpenFile). Gzip is unwrapped by its magic bytes.
+// CSV (stream.OpenFile; the file name ending in .csv or .csv.gz decides),
+// "csv" or "ndjson" for one of those whatever the file is called. Gzip is
+// unwrapped by its magic bytes.
 //
 // # Stream ranges
 //

@@ -19,10 +19,14 @@ const (
 	FormatEvents = "events" // the project's JSON lines or CSV (stream.OpenFile)
 	FormatMSNBC  = "msnbc"
 	FormatEshop  = "eshop"
+	FormatCSV    = "csv"    // the project's CSV whatever the file's name
+	FormatNDJSON = "ndjson" // the project's JSON lines whatever the file's name
 )
 
 // Formats lists the format names Open accepts.
-func Formats() []string { return []string{FormatAuto, FormatEvents, FormatMSNBC, FormatEshop} }
+func Formats() []string {
+	return []string{FormatAuto, FormatEvents, FormatMSNBC, FormatEshop, FormatCSV, FormatNDJSON}
+}
 
 // File is an open dataset or event file.
 type File struct {
@@ -65,7 +69,7 @@ func (f *File) Close() error {
 // default options of each reader.
 func Open(path, format string) (*File, error) {
 	switch format {
-	case "", FormatAuto, FormatEvents, FormatMSNBC, FormatEshop:
+	case "", FormatAuto, FormatEvents, FormatMSNBC, FormatEshop, FormatCSV, FormatNDJSON:
 	default:
 		return nil, fmt.Errorf("%w: %q (known: %s)", ErrUnknownFormat, format, strings.Join(Formats(), ", "))
 	}
@@ -95,6 +99,10 @@ func Open(path, format string) (*File, error) {
 		file.Reader, err = NewMSNBCReader(body, DefaultMSNBCOptions())
 	case FormatEshop:
 		file.Reader, err = NewEshopReader(body, DefaultEshopOptions())
+	case FormatCSV:
+		file.Reader, err = stream.NewCSVReader(body)
+	case FormatNDJSON:
+		file.Reader = stream.NewJSONLinesReader(body)
 	default:
 		// The name still decides between CSV and JSON lines; drop a .gz
 		// suffix since the content is already unwrapped.

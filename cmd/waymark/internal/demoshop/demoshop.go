@@ -11,6 +11,7 @@ import (
 	"math"
 	"math/rand/v2"
 	"sort"
+	"strings"
 	"time"
 
 	"waymark/stream"
@@ -99,7 +100,9 @@ func Generate(opts Options) *Scenario {
 	for _, c := range cats {
 		for i, w := range c.words {
 			it := Item{
-				ID:       fmt.Sprintf("%s-%s", c.noun[:min(len(c.noun), 5)], w),
+				// The whole noun, so ids read as names ("lantern-pocket",
+				// "pot-set-titanium"), not cut-off words.
+				ID:       strings.ReplaceAll(c.noun, " ", "-") + "-" + w,
 				Category: c.path,
 				Title:    fmt.Sprintf("%s %s", w, c.noun),
 				Tags:     append([]string{w}, c.tags...),
