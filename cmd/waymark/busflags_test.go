@@ -107,7 +107,7 @@ func runCmd(run func(context.Context, []string, io.Writer, io.Writer) int, args 
 	return code, out.String()
 }
 
-// TestSendFindsRecordedCredentials: send given only --nats finds the
+// TestSendFindsRecordedCredentials: send and replay given only --nats find the
 // credentials the embedded server recorded in the user's config folder
 // for that address; with another config folder it is refused.
 func TestSendFindsRecordedCredentials(t *testing.T) {
@@ -119,6 +119,15 @@ func TestSendFindsRecordedCredentials(t *testing.T) {
 	}
 	if got := lastSeq(t, s); got != 30 {
 		t.Fatalf("stream last sequence %d after sending 30 events", got)
+	}
+	// replay reads the range through an ordered consumer whose replies
+	// come to the recorded credentials' inbox prefix.
+	rep := filepath.Join(t.TempDir(), "r.json")
+	if code, out := runCmd(runReplay, "--nats", s.ClientURL(), "--quiet", "--json", rep); code != 0 {
+		t.Fatalf("replay with recorded credentials: exit %d: %s", code, out)
+	}
+	if b, err := os.ReadFile(rep); err != nil || !strings.Contains(string(b), `"events": 30`) {
+		t.Fatalf("replay report does not count the 30 events sent (%v): %.300s", err, b)
 	}
 	isolateConfig(t) // another user, or another machine
 	code, out := runCmd(runSend, "--nats", s.ClientURL(), ev)
