@@ -119,9 +119,14 @@ func TestServerAnonymousPublishOnly(t *testing.T) {
 		t.Fatal(err)
 	}
 
-	// The refusals arrive as asynchronous permission errors; the test
-	// reads them from the publish results, so the handler stays quiet.
-	nc, err := nats.Connect(s.ClientURL(), nats.Timeout(5*time.Second), nats.ErrorHandler(func(*nats.Conn, *nats.Subscription, error) {}))
+	// The refusals arrive as asynchronous permission errors.
+	asyncErrs := make(chan error, 16)
+	nc, err := nats.Connect(s.ClientURL(), nats.Timeout(5*time.Second), nats.ErrorHandler(func(_ *nats.Conn, _ *nats.Subscription, err error) {
+		select {
+		case asyncErrs <- err:
+		default:
+		}
+	}))
 	if err != nil {
 		t.Fatalf("anonymous connect with AnonymousPublish set: %v", err)
 	}
@@ -153,6 +158,22 @@ func TestServerAnonymousPublishOnly(t *testing.T) {
 	cancel3()
 	if err == nil {
 		t.Errorf("anonymous client created the snapshot bucket")
+	}
+	// Full-access clients of the server reply to their own inbox prefix,
+	// which the anonymous client may not read (it may read _INBOX.> for
+	// its own acknowledgements).
+	if _, err := nc.SubscribeSync(localInboxPrefix + ".>"); err != nil {
+		t.Fatal(err)
+	}
+	_ = nc.Flush()
+	deadline := time.After(10 * time.Second)
+	for refused := false; !refused; {
+		select {
+		case err := <-asyncErrs:
+			refused = strings.Contains(err.Error(), "Subscription") && strings.Contains(err.Error(), localInboxPrefix)
+		case <-deadline:
+			t.Fatalf("anonymous subscription to %s.> was not refused", localInboxPrefix)
+		}
 	}
 	// What landed: exactly the one event, the stream still there.
 	last, err := full.LastSequence(ctx)
