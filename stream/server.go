@@ -183,6 +183,9 @@ func StartServer(ctx context.Context, opts ServerOptions) (*Server, error) {
 			}
 		}
 	}
+	if ip := net.ParseIP(host); opts.Auth != nil && s.tlsPin == "" && host != "localhost" && (ip == nil || !ip.IsLoopback()) {
+		log.Warn("the embedded nats server listens beyond loopback without TLS: its password crosses the network in clear", "listen", opts.Listen)
+	}
 	log.Info("embedded nats server ready", "url", s.url, "dir", opts.Dir,
 		"auth", opts.Auth != nil, "tls", s.tlsPin != "", "local_credentials", s.credFile)
 	return s, nil
