@@ -20,7 +20,7 @@ import (
 // WAYMARK_TEST_CHILD set, the test binary serves until it is killed.
 func TestMain(m *testing.M) {
 	if os.Getenv("WAYMARK_TEST_CHILD") == "" {
-		os.Exit(m.Run())
+		os.Exit(runWithTempConfig(m))
 	}
 	o := DefaultServiceOptions()
 	o.DataDir = os.Getenv("WAYMARK_TEST_DIR")
@@ -35,6 +35,22 @@ func TestMain(m *testing.M) {
 	}
 	<-s.Err()
 	os.Exit(1)
+}
+
+// runWithTempConfig runs the tests with the user's config folder (where
+// services record their bus credentials, stream.DefaultCredentialsDir) in
+// a temporary folder, so tests never write in the real home; the crash
+// test's child processes inherit it.
+func runWithTempConfig(m *testing.M) int {
+	dir, err := os.MkdirTemp("", "waymark-session-home-")
+	if err != nil {
+		fmt.Fprintln(os.Stderr, err)
+		return 1
+	}
+	defer os.RemoveAll(dir)
+	os.Setenv("XDG_CONFIG_HOME", dir)
+	os.Setenv("HOME", dir)
+	return m.Run()
 }
 
 func freeAddr(t testing.TB) string {

@@ -1,6 +1,7 @@
 package session
 
 import (
+	"cmp"
 	"context"
 	"crypto/rand"
 	"encoding/hex"
@@ -36,6 +37,14 @@ type ServiceOptions struct {
 	Bus        stream.BusOptions
 	Engine     EngineOptions
 	Store      store.Options
+	// NATSAuth are the embedded server's access rules; it always requires
+	// credentials (a password generated into the data folder unless
+	// NATSAuth.Password is set). Without Token, and unless
+	// NATSAuth.AnonymousPublish says otherwise, a client without
+	// credentials may still publish events and catalogue records, which
+	// is what the HTTP API lets anyone do without a token; with Token it
+	// is refused.
+	NATSAuth stream.ServerAuth
 	// ReadyLag is the consumer lag under which /readyz answers ready
 	// (default 1000 messages).
 	ReadyLag uint64
@@ -70,6 +79,7 @@ func DefaultServiceOptions() ServiceOptions {
 		DataDir:       "waymark-data",
 		HTTPAddr:      "127.0.0.1:8080",
 		NATSListen:    "127.0.0.1:4222",
+		NATSAuth:      stream.ServerAuth{CredentialsDir: stream.DefaultCredentialsDir()},
 		Bus:           bus,
 		Engine:        DefaultEngineOptions(),
 		Store:         store.DefaultOptions(),
@@ -175,11 +185,16 @@ func Open(ctx context.Context, opts ServiceOptions) (_ *Service, err error) {
 	bo := opts.Bus
 	bo.Logger, bo.Registerer = opts.Logger, s.reg
 	if bo.URL == "" {
-		s.ns, err = stream.StartServer(ctx, stream.ServerOptions{Dir: filepath.Join(opts.DataDir, "nats"), Listen: opts.NATSListen, Logger: opts.Logger})
+		auth := opts.NATSAuth
+		if auth.AnonymousPublish == nil && opts.Token == "" {
+			d := stream.DefaultBusOptions()
+			auth.AnonymousPublish = []string{cmp.Or(bo.Subject, d.Subject), cmp.Or(bo.CatalogSubject, d.CatalogSubject)}
+		}
+		s.ns, err = stream.StartServer(ctx, stream.ServerOptions{Dir: filepath.Join(opts.DataDir, "nats"), Listen: opts.NATSListen, Logger: opts.Logger, Auth: &auth})
 		if err != nil {
 			return nil, fmt.Errorf("embedded NATS server: %w", err)
 		}
-		bo.URL = s.ns.ClientURL()
+		bo = s.ns.ClientOptions(bo)
 		s.log.Info("embedded NATS server started", "url", bo.URL)
 	}
 	if s.bus, err = stream.Connect(ctx, bo); err != nil {

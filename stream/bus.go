@@ -31,12 +31,19 @@ type Bus struct {
 // forever and opens JetStream. It does not create streams; see EnsureStreams.
 func Connect(ctx context.Context, opts BusOptions) (*Bus, error) {
 	opts = opts.withDefaults()
-	if err := opts.validate(); err != nil {
-		return nil, err
-	}
 	log := opts.Logger
 	if log == nil {
 		log = slog.New(slog.DiscardHandler)
+	}
+	opts, credPath, err := opts.withLocalCredentials()
+	if err != nil {
+		return nil, err
+	}
+	if credPath != "" {
+		log.Info("using the local bus credentials an embedded server recorded", "file", credPath)
+	}
+	if err := opts.validate(); err != nil {
+		return nil, err
 	}
 	b := &Bus{
 		opts:      opts,
@@ -65,9 +72,11 @@ func Connect(ctx context.Context, opts BusOptions) (*Bus, error) {
 			log.Warn("nats async error", "subject", subj, "err", err)
 		}),
 	}
-	if opts.CredsFile != "" {
-		nopts = append(nopts, nats.UserCredentials(opts.CredsFile))
+	auth, err := opts.authOptions()
+	if err != nil {
+		return nil, err
 	}
+	nopts = append(nopts, auth...)
 	if opts.TLSCert != "" {
 		nopts = append(nopts, nats.ClientCert(opts.TLSCert, opts.TLSKey))
 	}
@@ -83,8 +92,11 @@ func Connect(ctx context.Context, opts BusOptions) (*Bus, error) {
 		return nil, fmt.Errorf("connect to nats: %w", err)
 	}
 	nc, err := nats.Connect(opts.URL, nopts...)
+	if errors.Is(err, nats.ErrAuthorization) && !opts.hasCredentials() {
+		return nil, fmt.Errorf("connect to nats %s: %w (the server wants credentials and none were given or recorded for this address in %q)", redactURL(opts.URL), err, opts.CredentialsDir)
+	}
 	if err != nil {
-		return nil, fmt.Errorf("connect to nats %s: %w", opts.URL, err)
+		return nil, fmt.Errorf("connect to nats %s: %w", redactURL(opts.URL), err)
 	}
 	// The jetstream-level cap only protects memory; each publish call keeps
 	// its own smaller window, so several concurrent callers fit under it.

@@ -58,5 +58,8 @@
 //		})
 //
 // StartServer runs an embedded NATS server with JetStream under a data folder,
-// the single-command default when no NATS URL is given.
+// the single-command default when no NATS URL is given. With
+// ServerOptions.Auth its client port requires credentials (and optionally
+// TLS) and records them for local clients in DefaultCredentialsDir, where
+// Connect finds them when it is given none.
 package stream

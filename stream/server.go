@@ -6,7 +6,9 @@ import (
 	"log/slog"
 	"net"
 	"net/url"
+	"path/filepath"
 	"strconv"
+	"strings"
 	"sync"
 	"time"
 
@@ -28,10 +30,16 @@ type ServerOptions struct {
 	Name string
 	// Cluster, when set, joins the server to a JetStream cluster.
 	Cluster *ClusterOptions
+	// Auth, when set, makes the client port require credentials (and
+	// optionally TLS). Nil leaves it open to anyone who reaches it, which
+	// only tests and benchmarks on loopback should do; serve always sets it.
+	// Routes between cluster nodes are not covered (see ClusterOptions).
+	Auth *ServerAuth
 }
 
 // ClusterOptions make an embedded server one node of a NATS cluster, as in
 // tests of scale-out on loopback; production clusters are real NATS servers.
+// The route port takes no credentials: keep it on loopback.
 type ClusterOptions struct {
 	Name   string   // cluster name, the same on every node
 	Listen string   // host:port for routes from other nodes
@@ -47,6 +55,11 @@ type Server struct {
 	ns  *server.Server
 	log *slog.Logger
 	url string
+
+	user, password string // full access; empty without ServerOptions.Auth
+	tlsPin         string // the server's certificate file when it requires TLS
+	credFile       string // the local credentials file written, if any
+	credBytes      []byte // its content, to remove only what this server wrote
 
 	shutdownOnce sync.Once
 	shutdownDone chan struct{}
@@ -93,6 +106,12 @@ func StartServer(ctx context.Context, opts ServerOptions) (*Server, error) {
 		NoSigs:     true, // the process owns signals, not the library
 		// HTTP monitoring and leafnodes stay off: the embedded server is the
 		// single-process default, a real deployment brings its own NATS.
+	}
+	var user, password string
+	if opts.Auth != nil {
+		if user, password, err = applyServerAuth(so, opts.Auth, opts.Dir); err != nil {
+			return nil, err
+		}
 	}
 	if c := opts.Cluster; c != nil {
 		ch, cp, err := net.SplitHostPort(c.Listen)
@@ -143,10 +162,49 @@ func StartServer(ctx context.Context, opts ServerOptions) (*Server, error) {
 		}
 		return nil, fmt.Errorf("start nats server: %s", msg)
 	}
-	s := &Server{ns: ns, log: log, shutdownDone: make(chan struct{})}
+	s := &Server{ns: ns, log: log, shutdownDone: make(chan struct{}), user: user, password: password}
 	s.url = clientURL(ns)
-	log.Info("embedded nats server ready", "url", s.url, "dir", opts.Dir)
+	if a := opts.Auth; a != nil {
+		if a.TLSCert != "" {
+			if s.tlsPin, err = filepath.Abs(a.TLSCert); err != nil {
+				ns.Shutdown()
+				return nil, fmt.Errorf("start nats server: %w", err)
+			}
+		}
+		if a.CredentialsDir != "" {
+			hp := strings.TrimPrefix(s.url, "nats://")
+			s.credFile = LocalCredentialsFile(a.CredentialsDir, hp)
+			s.credBytes, err = writeLocalCredentials(s.credFile, LocalCredentials{URL: s.url, User: user, Password: password, TLSPin: s.tlsPin})
+			if err != nil {
+				// Clients on this machine then need the credentials
+				// given to them; the server itself is fine.
+				log.Warn("could not record the bus credentials for local clients", "err", err)
+				s.credFile = ""
+			}
+		}
+	}
+	if ip := net.ParseIP(host); opts.Auth != nil && s.tlsPin == "" && host != "localhost" && (ip == nil || !ip.IsLoopback()) {
+		log.Warn("the embedded nats server listens beyond loopback without TLS: its password crosses the network in clear", "listen", opts.Listen)
+	}
+	log.Info("embedded nats server ready", "url", s.url, "dir", opts.Dir,
+		"auth", opts.Auth != nil, "tls", s.tlsPin != "", "local_credentials", s.credFile)
 	return s, nil
+}
+
+// ClientOptions returns o set up to connect to this server with full
+// access: its URL, user and password, the pinned certificate when it
+// requires TLS, and an inbox prefix anonymous clients cannot read.
+func (s *Server) ClientOptions(o BusOptions) BusOptions {
+	o.URL = s.url
+	o.CredsFile, o.Token, o.NkeySeedFile = "", "", ""
+	o.User, o.Password = s.user, s.password
+	if s.tlsPin != "" {
+		o.TLSPinFile, o.TLSCA = s.tlsPin, ""
+	}
+	if s.user != "" && o.InboxPrefix == "" {
+		o.InboxPrefix = localInboxPrefix
+	}
+	return o
 }
 
 func clientURL(ns *server.Server) string {
@@ -169,6 +227,9 @@ func (s *Server) ClientURL() string { return s.url }
 func (s *Server) Shutdown(ctx context.Context) error {
 	s.shutdownOnce.Do(func() {
 		go func() {
+			if s.credFile != "" {
+				removeIfSame(s.credFile, s.credBytes)
+			}
 			s.ns.Shutdown()
 			s.ns.WaitForShutdown()
 			close(s.shutdownDone)

@@ -84,8 +84,7 @@ func priorsExport(ctx context.Context, args []string, stdout, stderr io.Writer) 
 func priorsImport(ctx context.Context, args []string, stdout, stderr io.Writer) int {
 	d := stream.DefaultBusOptions()
 	fs := flag.NewFlagSet("priors import", flag.ContinueOnError)
-	url := fs.String("nats", "nats://127.0.0.1:4222", "NATS `URL` of the deployment that imports")
-	creds := fs.String("nats-creds", "", "NATS credentials `file`")
+	nb := addBusFlags(fs, "nats://127.0.0.1:4222", "NATS `URL` of the deployment that imports")
 	streamName := fs.String("stream", d.Stream, "JetStream stream `name`")
 	control := fs.String("control-subject", d.ControlSubject, "control `subject`")
 	mapFile := fs.String("map", "", "CSV `file` of from,to item ids (a header line is allowed); empty keeps ids as they are")
@@ -119,7 +118,8 @@ func priorsImport(ctx context.Context, args []string, stdout, stderr io.Writer) 
 	}
 	defer f.Close()
 	bo := d
-	bo.URL, bo.CredsFile, bo.Stream, bo.ControlSubject, bo.Name = *url, *creds, *streamName, *control, "waymark-priors"
+	nb.apply(&bo)
+	bo.Stream, bo.ControlSubject, bo.Name = *streamName, *control, "waymark-priors"
 	bus, err := stream.Connect(ctx, bo)
 	if err != nil {
 		fmt.Fprintln(stderr, "waymark priors import:", err)

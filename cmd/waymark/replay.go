@@ -51,17 +51,18 @@ flags:
 `
 
 type replayFlags struct {
-	format, models, ks, target, protocol, exclude                 string
-	splitAt                                                       string
-	testDays                                                      float64
-	learnTest, strict, catalog, timings, quiet, dropUnseen        bool
-	minLen, minSupport, cold                                      int
-	window, maxSess, capItem, srWindow                            int
-	timeout, halfLife                                             time.Duration
-	jsonOut, csvOut, htmlOut                                      string
-	natsURL, creds, streamName, subject, catalogSubject, from, to string
-	folds, kMinLen, kSessions, kTargets, kContext                 int
-	seed                                                          uint64
+	format, models, ks, target, protocol, exclude          string
+	splitAt                                                string
+	testDays                                               float64
+	learnTest, strict, catalog, timings, quiet, dropUnseen bool
+	minLen, minSupport, cold                               int
+	window, maxSess, capItem, srWindow                     int
+	timeout, halfLife                                      time.Duration
+	jsonOut, csvOut, htmlOut                               string
+	bus                                                    *busFlags
+	streamName, subject, catalogSubject, from, to          string
+	folds, kMinLen, kSessions, kTargets, kContext          int
+	seed                                                   uint64
 }
 
 func runReplay(ctx context.Context, args []string, stdout, stderr io.Writer) int {
@@ -73,8 +74,7 @@ func runReplay(ctx context.Context, args []string, stdout, stderr io.Writer) int
 	fs.StringVar(&f.format, "format", dataset.FormatAuto, "input `format`: "+strings.Join(dataset.Formats(), ", "))
 	fs.BoolVar(&f.strict, "strict-order", false, "refuse input whose event times go back instead of sorting it")
 	fs.BoolVar(&f.catalog, "catalog", true, "apply the catalogue records the sources carry (stream catalogue subject, dataset item attributes)")
-	fs.StringVar(&f.natsURL, "nats", "", "NATS `URL` to replay a stream range from (instead of files)")
-	fs.StringVar(&f.creds, "nats-creds", "", "NATS credentials `file`")
+	f.bus = addBusFlags(fs, "", "NATS `URL` to replay a stream range from (instead of files)")
 	fs.StringVar(&f.streamName, "stream", bd.Stream, "JetStream stream `name` to replay")
 	fs.StringVar(&f.subject, "subject", bd.Subject, "`subject` of click events in the stream")
 	fs.StringVar(&f.catalogSubject, "catalog-subject", bd.CatalogSubject, "`subject` of catalogue records in the stream")
@@ -117,10 +117,10 @@ func runReplay(ctx context.Context, args []string, stdout, stderr io.Writer) int
 		return code
 	}
 	usageErr := func(format string, a ...any) int { return usageError(stderr, "replay", format, a...) }
-	if (fs.NArg() == 0) == (f.natsURL == "") {
+	if (fs.NArg() == 0) == (f.bus.url == "") {
 		return usageErr("give event files, or --nats with --stream, not both")
 	}
-	if f.natsURL == "" && (f.from != "" || f.to != "") {
+	if f.bus.url == "" && (f.from != "" || f.to != "") {
 		return usageErr("--from and --to select a stream range; they need --nats")
 	}
 	opts, err := f.options(po)
@@ -139,13 +139,14 @@ func runReplay(ctx context.Context, args []string, stdout, stderr io.Writer) int
 			c.Close()
 		}
 	}()
-	if f.natsURL != "" {
+	if f.bus.url != "" {
 		ro, err := f.rangeOptions()
 		if err != nil {
 			return usageErr("%v", err)
 		}
 		bo := bd
-		bo.URL, bo.CredsFile, bo.Stream, bo.Subject, bo.CatalogSubject, bo.Name = f.natsURL, f.creds, f.streamName, f.subject, f.catalogSubject, "waymark-replay"
+		f.bus.apply(&bo)
+		bo.Stream, bo.Subject, bo.CatalogSubject, bo.Name = f.streamName, f.subject, f.catalogSubject, "waymark-replay"
 		bus, err := stream.Connect(ctx, bo)
 		if err != nil {
 			fmt.Fprintln(stderr, "waymark replay:", err)

@@ -19,8 +19,7 @@ import (
 func runSend(ctx context.Context, args []string, stdout, stderr io.Writer) int {
 	d := stream.DefaultBusOptions()
 	fs := flag.NewFlagSet("send", flag.ContinueOnError)
-	url := fs.String("nats", "nats://127.0.0.1:4222", "NATS `URL`")
-	creds := fs.String("nats-creds", "", "NATS credentials `file`")
+	nb := addBusFlags(fs, "nats://127.0.0.1:4222", "NATS `URL`")
 	streamName := fs.String("stream", d.Stream, "JetStream stream `name` (created if missing)")
 	subject := fs.String("subject", d.Subject, "`subject` of click events")
 	catalog := fs.String("catalog-subject", d.CatalogSubject, "`subject` of catalogue records")
@@ -41,7 +40,8 @@ func runSend(ctx context.Context, args []string, stdout, stderr io.Writer) int {
 		return usageError(stderr, "send", "--format %q is not one of %s", *format, strings.Join(dataset.Formats(), ", "))
 	}
 	bo := d
-	bo.URL, bo.CredsFile, bo.Stream, bo.Subject, bo.CatalogSubject, bo.Name = *url, *creds, *streamName, *subject, *catalog, "waymark-send"
+	nb.apply(&bo)
+	bo.Stream, bo.Subject, bo.CatalogSubject, bo.Name = *streamName, *subject, *catalog, "waymark-send"
 	bus, err := stream.Connect(ctx, bo)
 	if err != nil {
 		fmt.Fprintln(stderr, "waymark send:", err)

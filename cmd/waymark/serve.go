@@ -26,12 +26,9 @@ type serveFlags struct {
 	config   string
 	data     string
 	http     string
-	nats     string
+	bus      *busFlags
 	listen   string
-	creds    string
-	tlsCert  string
-	tlsKey   string
-	tlsCA    string
+	lis      *listenFlags
 	stream   string
 	subject  string
 	catalog  string
@@ -70,12 +67,9 @@ func newServeFlags(name string, stderr io.Writer) *serveFlags {
 	fs.StringVar(&f.config, "config", "", "JSON config `file` whose keys are these flag names")
 	fs.StringVar(&f.data, "data", d.DataDir, "data `folder` for the store (and the embedded server's JetStream files)")
 	fs.StringVar(&f.http, "http", d.HTTPAddr, "HTTP listen `address`")
-	fs.StringVar(&f.nats, "nats", "", "NATS `URL` of an existing server or cluster; empty starts an embedded server")
+	f.bus = addBusFlags(fs, "", "NATS `URL` of an existing server or cluster; empty starts an embedded server")
 	fs.StringVar(&f.listen, "nats-listen", d.NATSListen, "listen `address` of the embedded NATS server")
-	fs.StringVar(&f.creds, "nats-creds", "", "NATS credentials `file`")
-	fs.StringVar(&f.tlsCert, "nats-tls-cert", "", "client TLS certificate `file` for NATS")
-	fs.StringVar(&f.tlsKey, "nats-tls-key", "", "client TLS key `file` for NATS")
-	fs.StringVar(&f.tlsCA, "nats-tls-ca", "", "CA `file` to verify the NATS server")
+	f.lis = addListenFlags(fs)
 	fs.StringVar(&f.stream, "stream", d.Bus.Stream, "JetStream stream `name`")
 	fs.StringVar(&f.subject, "subject", d.Bus.Subject, "`subject` of click events")
 	fs.StringVar(&f.catalog, "catalog-subject", d.Bus.CatalogSubject, "`subject` of catalogue records")
@@ -136,8 +130,8 @@ func (f *serveFlags) logger(w io.Writer) (*slog.Logger, error) {
 func (f *serveFlags) options(log *slog.Logger) (session.ServiceOptions, error) {
 	o := session.DefaultServiceOptions()
 	o.DataDir, o.HTTPAddr, o.NATSListen, o.ReadyLag = f.data, f.http, f.listen, f.readyLag
-	o.Bus.URL, o.Bus.CredsFile = f.nats, f.creds
-	o.Bus.TLSCert, o.Bus.TLSKey, o.Bus.TLSCA = f.tlsCert, f.tlsKey, f.tlsCA
+	f.bus.apply(&o.Bus)
+	f.lis.apply(&o.NATSAuth)
 	o.Bus.Stream, o.Bus.Subject, o.Bus.CatalogSubject, o.Bus.DeadLetterSubject = f.stream, f.subject, f.catalog, f.dlq
 	o.Bus.Name = "waymark-serve"
 	o.Bus.Replicas, o.Bus.MaxAge, o.Bus.MaxBytes = f.replicas, f.maxAge, f.maxBytes
@@ -184,7 +178,7 @@ func runServe(ctx context.Context, args []string, stdout, stderr io.Writer) int 
 	if err != nil {
 		return usageError(stderr, "serve", "%v", err)
 	}
-	eff, _ := json.Marshal(flagconf.Effective(f.fs, "nats-creds", "nats-tls-key", "auth-token"))
+	eff, _ := json.Marshal(flagconf.Effective(f.fs, append(append([]string{"auth-token"}, busSecretFlags...), listenSecretFlags...)...))
 	log.Info("effective config", "config", string(eff))
 	if f.debug != "" {
 		go func() {
