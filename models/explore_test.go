@@ -104,3 +104,45 @@ func TestExploreReproducible(t *testing.T) {
 		t.Error("other seed, identical explorations")
 	}
 }
+
+// TestExploreSlotPlace: a full answer explores in place of its lowest
+// ranked item that is not fresh, never the first; an answer whose slots
+// after the first hold only fresh items the blend ranked keeps them (in a
+// new shop everything is fresh, and trading a fresh item with evidence for
+// one drawn without would only lose). Share 1 makes every answer try.
+func TestExploreSlotPlace(t *testing.T) {
+	f := newTestFresh(t, DefaultFreshOptions(), nil, nil)
+	const old, now = int64(1000), int64(10 * 86_400_000)
+	for id := range ItemID(10) {
+		pub := now - 1000 // 0-4 new
+		if id >= 5 {
+			pub = old // 5-9 old
+		}
+		f.ObserveItem(&ItemInfo{Item: id, Available: true, Published: pub, TS: pub})
+	}
+	for _, tc := range []struct {
+		name   string
+		ranked []ItemID
+		slot   int // -1: no exploration
+	}{
+		{"old items: the last slot", []ItemID{5, 6, 7}, 2},
+		{"a fresh last item stays", []ItemID{5, 6, 0}, 1},
+		{"only the first is old", []ItemID{5, 0, 1}, -1},
+		{"everything fresh", []ItemID{0, 1, 2}, -1},
+		{"short answer: appended", []ItemID{0, 1}, 2},
+	} {
+		ranked := make([]Scored, len(tc.ranked))
+		for i, id := range tc.ranked {
+			ranked[i] = Scored{Item: id, Score: float64(10 - i)}
+		}
+		for n := range 50 {
+			x, ok := f.Explore(&Query{Now: now}, 1, 3, ranked, ExploreRand(1, fmt.Sprint(n)), nil)
+			switch {
+			case tc.slot < 0 && ok:
+				t.Fatalf("%s: explored slot %d with %d", tc.name, x.Slot, x.Item)
+			case tc.slot >= 0 && (!ok || x.Slot != tc.slot || x.Item >= 5):
+				t.Fatalf("%s: got %+v %v, want a new item in slot %d", tc.name, x, ok, tc.slot)
+			}
+		}
+	}
+}
