@@ -48,8 +48,10 @@ type Signal struct {
 // that signal's best score, so every feature lies in [0, 1], and the blended
 // score is the weighted sum of the features. Popularity takes part as one
 // more signal with a small weight and fills the list when the others have
-// too few candidates; when no other signal has any (an empty session, or
-// only unknown items) the answer comes from popularity alone.
+// too few candidates; fills always rank below the candidates with evidence
+// (issue 13: a popular item never seen after the session's items must not
+// outrank one that was). When no other signal has any candidate (an empty
+// session, or only unknown items) the answer comes from popularity alone.
 //
 // Content back-off: a content signal (a [Content] model) speaks for pairs
 // that clicks cannot yet judge. For the session's last item a and a
@@ -95,9 +97,12 @@ func (b *Blend) setColdStart(cat *Catalog, n0 float64) {
 // available reports whether id may be recommended.
 func (b *Blend) available(id ItemID) bool { return b.cat == nil || b.cat.Available(id) }
 
-// DefaultPopWeight is popularity's weight in the default blend: enough to
-// order otherwise tied candidates and to fill short lists, too small to
-// outvote a session's own evidence.
+// DefaultPopWeight is popularity's weight in the default blend, as a
+// feature of the candidates other signals found: it orders candidates with
+// similar evidence. Whatever its size, it never lifts an item no other
+// signal proposed (a popularity fill) above one they did: fills rank below
+// every candidate with evidence (see [Blend.fillScore]). A weight of 0
+// turns fills off.
 const DefaultPopWeight = 0.1
 
 // NewBlend returns a blend of signals over a popularity model.
@@ -173,6 +178,9 @@ type blendScratch struct {
 	parts []Scores  // each signal's raw scores
 	norm  []float64 // each signal's normaliser; 0: no candidates or skipped
 	popMx float64   // popularity's normaliser; 0: no popular items
+	// floor is the lowest positive blended score among the candidates
+	// with evidence; 0: none (fills then score by popularity alone).
+	floor float64
 	top   []Scored
 	items []ItemID
 	raw   []float64
@@ -200,6 +208,50 @@ func (b *Blend) getScratch() *blendScratch {
 // them); callers rank with b.keep. It reports whether any signal other than
 // popularity had candidates, and the signals the budget skipped.
 func (b *Blend) blend(q *Query, popN int, sc *blendScratch, skip func(ItemID) bool, bu Budget) (collab bool, skipped []string) {
+	collab, skipped = b.evidence(q, sc, bu)
+	if sc.popMx == 0 {
+		return collab, skipped
+	}
+	// Popularity as a source of candidates to fill the list, counting
+	// only items that can be shown.
+	filled := 0
+	for _, id := range b.pop.Top(popTopN) {
+		if filled == popN {
+			break
+		}
+		if !b.keep(id, skip) {
+			continue
+		}
+		filled++
+		if _, ok := sc.out.Lookup(id); !ok {
+			sc.out.Set(id, b.fillScore(sc, b.pop.Count(id)/sc.popMx))
+		}
+	}
+	return collab, skipped
+}
+
+// fillScore is the score of a popularity fill of relative popularity f in
+// (0, 1]: with candidates of evidence, half the weakest one's score times
+// f, so every fill ranks below every candidate with evidence and fills
+// keep their popularity order; without any, popularity's own weighted
+// feature. A popularity weight of 0 gives 0: no fills.
+func (b *Blend) fillScore(sc *blendScratch, f float64) float64 {
+	if b.popW <= 0 {
+		return 0
+	}
+	if sc.floor > 0 {
+		return sc.floor * f / 2
+	}
+	return b.popW * f
+}
+
+// evidence fills sc.out with the blended scores of every signal's
+// candidates (popularity included as their feature), sc.parts and sc.norm
+// with what features need, sc.popMx and sc.floor. It reports whether any
+// signal other than popularity had candidates, and the signals the budget
+// skipped.
+func (b *Blend) evidence(q *Query, sc *blendScratch, bu Budget) (collab bool, skipped []string) {
+	sc.floor = 0
 	for si := range b.signals {
 		s := &b.signals[si]
 		part := &sc.parts[si]
@@ -231,30 +283,17 @@ func (b *Blend) blend(q *Query, popN int, sc *blendScratch, skip func(ItemID) bo
 		}
 	}
 	sc.popMx = 0
-	all := b.pop.Top(popTopN)
-	if len(all) == 0 {
-		return collab, skipped
+	if top := b.pop.Top(1); len(top) == 1 {
+		sc.popMx = b.pop.Count(top[0])
 	}
-	mx := b.pop.Count(all[0])
-	sc.popMx = mx
-	// Popularity as a feature of every candidate the others found...
+	// Popularity as a feature of every candidate the others found.
 	ents := sc.out.Entries()
 	for i := range ents {
-		ents[i].Score += b.popW * (b.pop.Count(ents[i].Item) / mx)
-	}
-	// ...and as a source of candidates to fill the list, counting only
-	// items that can be shown.
-	filled := 0
-	for _, id := range all {
-		if filled == popN {
-			break
+		if sc.popMx > 0 {
+			ents[i].Score += b.popW * (b.pop.Count(ents[i].Item) / sc.popMx)
 		}
-		if !b.keep(id, skip) {
-			continue
-		}
-		filled++
-		if _, ok := sc.out.Lookup(id); !ok {
-			sc.out.Set(id, b.popW*(b.pop.Count(id)/mx))
+		if v := ents[i].Score; v > 0 && (sc.floor == 0 || v < sc.floor) {
+			sc.floor = v
 		}
 	}
 	return collab, skipped
@@ -385,7 +424,9 @@ type ScoreRow struct {
 
 // Score computes the blended score and features of each given candidate, in
 // the order given. Features are normalised exactly as in Recommend, so the
-// two answers agree.
+// two answers agree; a candidate no signal but popularity speaks for scores
+// as a popularity fill of the same query would, below every candidate with
+// evidence.
 func (b *Blend) Score(q *Query, items []ItemID) []ScoreRow {
 	nf := len(b.signals) + 1
 	rows := make([]ScoreRow, len(items))
@@ -397,11 +438,11 @@ func (b *Blend) Score(q *Query, items []ItemID) []ScoreRow {
 	defer b.scratch.Put(sc)
 	sc.raw = slices.Grow(sc.raw[:0], len(items))[:len(items)]
 	raw := sc.raw
+	b.evidence(q, sc, Budget{}) // each signal's candidates, and the fills' floor
+	evidenced := make([]bool, len(items))
 	for si := range b.signals {
 		s := &b.signals[si]
 		part := &sc.parts[si]
-		part.Reset()
-		s.Model.Candidates(q, part)
 		s.Model.ScoreItems(q, items, raw)
 		// A signal may score items it would not propose; keep features
 		// within [0, 1] all the same.
@@ -417,6 +458,7 @@ func (b *Blend) Score(q *Query, items []ItemID) []ScoreRow {
 		for i, v := range raw {
 			f := v / mx
 			rows[i].Features[si] = f
+			evidenced[i] = evidenced[i] || f > 0
 			if content {
 				rows[i].Score += s.Weight * cf(items[i]) * f
 			} else {
@@ -424,12 +466,16 @@ func (b *Blend) Score(q *Query, items []ItemID) []ScoreRow {
 			}
 		}
 	}
-	if top := b.pop.Top(1); len(top) == 1 {
-		mx := b.pop.Count(top[0])
+	if mx := sc.popMx; mx > 0 {
 		for i, id := range items {
 			f := b.pop.Count(id) / mx
 			rows[i].Features[nf-1] = f
-			rows[i].Score += b.popW * f
+			switch {
+			case evidenced[i]:
+				rows[i].Score += b.popW * f
+			case f > 0:
+				rows[i].Score = b.fillScore(sc, f)
+			}
 		}
 	}
 	return rows

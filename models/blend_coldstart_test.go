@@ -46,10 +46,22 @@ func TestBlendContentBackoff(t *testing.T) {
 	if got := cf(t9); got != 1 {
 		t.Errorf("an unclicked candidate gets factor %g, want 1", got)
 	}
-	// The blended score is the weighted sum of the reported features.
+	// The blended score of a candidate with evidence is the weighted sum of
+	// the reported features; a popularity fill (only the pop feature) ranks
+	// below all of them.
 	res := b.Explain(q, 10, nil, Budget{})
 	sigs := b.Signals()
+	lowest, highestFill := math.Inf(1), 0.0
 	for i, it := range res.Items {
+		fill := true
+		for si, f := range res.Features[i] {
+			fill = fill && (f == 0 || sigs[si] == "pop")
+		}
+		if fill {
+			highestFill = math.Max(highestFill, it.Score)
+			continue
+		}
+		lowest = math.Min(lowest, it.Score)
 		want := 0.0
 		for si, f := range res.Features[i] {
 			w := 1.0
@@ -64,6 +76,9 @@ func TestBlendContentBackoff(t *testing.T) {
 		if math.Abs(it.Score-want) > 1e-12 {
 			t.Errorf("item %d: score %.15g, features give %.15g", it.Item, it.Score, want)
 		}
+	}
+	if highestFill >= lowest {
+		t.Errorf("a popularity fill scores %g, not below every candidate with evidence (lowest %g)", highestFill, lowest)
 	}
 	// As T9 gathers clicks its content weight beside T2 falls: 10 decayed
 	// clicks halve it.

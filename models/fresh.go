@@ -14,12 +14,11 @@ import (
 // FreshOptions configure fresh-item exploration.
 type FreshOptions struct {
 	// Window: an item is fresh while younger than this, in event time
-	// (default 48 h). Its age counts from its record's publication time,
-	// or else from the first record or click seen.
+	// (default 48 h), and only then: fresh means new. Its age counts from
+	// its record's publication time, or else from the first record or
+	// click seen. How often it was shown does not matter: an old item
+	// nobody reported as shown is not fresh.
 	Window time.Duration
-	// MinImpressions keeps an older item in the pool while it has been
-	// shown fewer times than this (default 20; 0 turns it off).
-	MinImpressions int
 	// MaxPool bounds the items competing, newest kept (default 500).
 	MaxPool int
 	// PriorA and PriorB are the Beta prior of every item's click rate
@@ -36,7 +35,7 @@ type FreshOptions struct {
 
 // DefaultFreshOptions returns the defaults documented on [FreshOptions].
 func DefaultFreshOptions() FreshOptions {
-	return FreshOptions{Window: 48 * time.Hour, MinImpressions: 20, MaxPool: 500, PriorA: 1, PriorB: 1, ContentBoost: 4, ServedSessions: 100_000}
+	return FreshOptions{Window: 48 * time.Hour, MaxPool: 500, PriorA: 1, PriorB: 1, ContentBoost: 4, ServedSessions: 100_000}
 }
 
 func (o *FreshOptions) validate() error {
@@ -59,8 +58,6 @@ func (o *FreshOptions) validate() error {
 	switch {
 	case o.Window < time.Minute:
 		return fmt.Errorf("%w: fresh: Window %s below 1m", ErrBadSpec, o.Window)
-	case o.MinImpressions < 0:
-		return fmt.Errorf("%w: fresh: MinImpressions %d below 0", ErrBadSpec, o.MinImpressions)
 	case o.MaxPool < 1:
 		return fmt.Errorf("%w: fresh: MaxPool %d below 1", ErrBadSpec, o.MaxPool)
 	case !(o.PriorA > 0) || !(o.PriorB > 0):
@@ -80,13 +77,15 @@ func (o *FreshOptions) validate() error {
 // slots. Items that are shown and not clicked lose their draws' mass; items
 // never shown keep the prior's spread and get their turn.
 //
-// Impressions and clicks come from the service, not the click stream:
-// [Fresh.Served] (or [Fresh.RecordImpressions]) after a response,
-// [Fresh.RecordSuccess] for a click on a served item, or, for tracked
-// sessions, automatically when the session clicks an item it was served.
+// Impressions and clicks come from what callers report they displayed, not
+// from what the service answered (a ranker downstream may drop an item):
+// [Fresh.Served] for each report (serve's POST /v1/shown, through the
+// log), [Fresh.RecordSuccess] for a click on a shown item, or, for tracked
+// sessions, automatically when the session clicks an item it was shown.
 // Like Observe, these must be called from the goroutine that applies
-// events. [Fresh.Pick] takes its generator from the caller, so a replay
-// with the same seed reproduces every choice.
+// events. [Fresh.Pick] and [Fresh.Explore] take their generator from the
+// caller, so a replay with the same seed and request ids reproduces every
+// choice.
 //
 // As a Model (inside a blend), Fresh is deterministic: it scores fresh
 // items by their posterior mean times the content preference.
@@ -129,9 +128,6 @@ func (f *Fresh) Name() string {
 	}
 	if f.content == nil {
 		ps = append(ps, "content=0")
-	}
-	if f.opts.MinImpressions != d.MinImpressions {
-		ps = append(ps, "min_impressions="+strconv.Itoa(f.opts.MinImpressions))
 	}
 	if f.opts.MaxPool != d.MaxPool {
 		ps = append(ps, "pool="+strconv.Itoa(f.opts.MaxPool))
@@ -225,12 +221,13 @@ func (f *Fresh) setBorn(id ItemID, born, now int64) {
 	}
 }
 
-// eligibleAt reports whether id is fresh at now, availability aside.
+// eligibleAt reports whether id is fresh at now, availability aside:
+// first seen less than Window before now, in event time.
 func (f *Fresh) eligibleAt(id ItemID, now int64) bool {
 	if int(id) >= len(f.born) || f.born[id] == 0 {
 		return false
 	}
-	return now-f.born[id] < f.opts.Window.Milliseconds() || int(f.imps[id]) < f.opts.MinImpressions
+	return now-f.born[id] < f.opts.Window.Milliseconds()
 }
 
 // compact drops items that can never be fresh again, then the oldest
@@ -309,11 +306,20 @@ func (f *Fresh) RecordSuccess(id ItemID, ts int64) {
 	f.markDirty(id)
 }
 
-// Served records a response to tracked session sessionNo: one impression
-// of each item, and the items to credit if the session clicks one later.
-// The most recent ServedSessions sessions are remembered; the memory is not
+// Served records what a caller displayed to tracked session sessionNo (0:
+// none named) at event time ts: one impression of each item that competes
+// for exploration (in the pool and fresh at ts), and those items to credit
+// if the session clicks one later. Other items are left alone: they never
+// compete, so their impressions would cost writes and change nothing. The
+// most recent ServedSessions sessions are remembered; the memory is not
 // persisted, so a click after a restart is not credited.
-func (f *Fresh) Served(sessionNo uint64, items []ItemID, ts int64) {
+func (f *Fresh) Served(sessionNo uint64, shown []ItemID, ts int64) {
+	var items []ItemID
+	for _, id := range shown {
+		if int(id) < len(f.inPool) && f.inPool[id] && f.eligibleAt(id, ts) && !slices.Contains(items, id) {
+			items = append(items, id)
+		}
+	}
 	f.RecordImpressions(items, ts)
 	if sessionNo == 0 || len(items) == 0 {
 		return

@@ -108,34 +108,40 @@ func TestFreshThompsonSimulation(t *testing.T) {
 	t.Logf("exposures %v (last quarter %v) for rates %v", total, late, rates)
 }
 
-// Freshness: an item stays in the pool while younger than the window or
-// shown fewer than MinImpressions times; an unavailable item never
+// Freshness means new (issue 13, finding 4): an item competes while it
+// was first seen less than the window ago, in event time, and only then;
+// an old item rarely or never shown is not fresh; an unavailable item never
 // competes.
 func TestFreshEligibility(t *testing.T) {
 	t0 := int64(1_767_225_600_000)
 	cat := NewCatalog()
-	opts := DefaultFreshOptions()
-	opts.MinImpressions = 3
-	f := newTestFresh(t, opts, cat, nil)
-	const young, old, oldUnshown, gone = 0, 1, 2, 3
+	f := newTestFresh(t, DefaultFreshOptions(), cat, nil)
+	const young, old, oldUnshown, gone, clicked = 0, 1, 2, 3, 4
 	f.ObserveItem(&ItemInfo{Item: young, Available: true, Published: t0 + 47*3600*1000, TS: t0})
 	f.ObserveItem(&ItemInfo{Item: old, Available: true, Published: t0, TS: t0})
 	f.ObserveItem(&ItemInfo{Item: oldUnshown, Available: true, Published: t0, TS: t0})
 	info := &ItemInfo{Item: gone, Available: false, TS: t0}
 	f.ObserveItem(info)
 	cat.ObserveItem(info)
-	f.RecordImpressions([]ItemID{old, old, old}, t0)
-	now := t0 + 50*3600*1000 // 50 h: old items are past the 48 h window
+	f.Served(0, []ItemID{old, old, old}, t0)
+	// No record: its first click is its birth, 49 h after t0.
+	f.Observe(&Observation{Item: clicked, TS: t0 + 49*3600*1000})
+	now := t0 + 50*3600*1000 // 50 h: items published at t0 are past the 48 h window
 	got := f.Pick(&Query{Now: now}, 10, NewExploreRand(1, 1), nil, nil)
 	var ids []ItemID
 	for _, s := range got {
 		ids = append(ids, s.Item)
 	}
 	slices.Sort(ids)
-	if want := []ItemID{young, oldUnshown}; !slices.Equal(ids, want) {
-		t.Errorf("picked %v, want %v", ids, want)
+	if want := []ItemID{young, clicked}; !slices.Equal(ids, want) {
+		t.Errorf("picked %v, want %v (only items first seen within 48 h)", ids, want)
 	}
-	if got := f.Pick(&Query{Now: now}, 10, NewExploreRand(1, 1), func(id ItemID) bool { return id == young }, nil); len(got) != 1 || got[0].Item != oldUnshown {
+	for id, want := range map[ItemID]bool{young: true, clicked: true, old: false, oldUnshown: false, gone: false} {
+		if got := f.IsFresh(id, now); got != want {
+			t.Errorf("IsFresh(%d) = %v, want %v", id, got, want)
+		}
+	}
+	if got := f.Pick(&Query{Now: now}, 10, NewExploreRand(1, 1), func(id ItemID) bool { return id == young }, nil); len(got) != 1 || got[0].Item != clicked {
 		t.Errorf("with young skipped picked %v", got)
 	}
 	if got := f.Pick(&Query{Now: now}, 0, NewExploreRand(1, 1), nil, nil); len(got) != 0 {
@@ -143,12 +149,23 @@ func TestFreshEligibility(t *testing.T) {
 	}
 }
 
-// A click by a tracked session on an item it was served counts as a
-// success, once; a click on an item it was not served does not.
+// A click by a tracked session on an item it was shown counts as a
+// success, once; a click on an item it was not shown does not. Only fresh
+// items count impressions: an item past its window reported as shown is
+// left alone.
 func TestFreshServedCredit(t *testing.T) {
 	f := newTestFresh(t, DefaultFreshOptions(), nil, nil)
-	const x, y = 0, 1
-	f.Served(7, []ItemID{x, y}, 10)
+	const x, y, stale = 0, 1, 2
+	for _, id := range []ItemID{x, y} {
+		f.ObserveItem(&ItemInfo{Item: id, Available: true, Published: 5, TS: 5})
+	}
+	f.ObserveItem(&ItemInfo{Item: stale, Available: true, Published: 1, TS: 1})
+	// At 48 h + 2 ms, x and y (published at 5 ms) are fresh, stale (1 ms)
+	// is not.
+	f.Served(7, []ItemID{x, y, stale}, 48*3600*1000+2)
+	if i, _ := f.Stats(stale); i != 0 {
+		t.Errorf("stale: %d impressions; an item that is not fresh counts none", i)
+	}
 	f.Observe(&Observation{Item: x, TS: 11, SessionNo: 7})
 	f.Observe(&Observation{Item: x, TS: 12, SessionNo: 7}) // second click: no new credit
 	f.Observe(&Observation{Item: y, TS: 13, SessionNo: 8}) // another session

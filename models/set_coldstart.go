@@ -220,14 +220,18 @@ func buildContent(s *Set, p *params) (Model, error) {
 	return NewContent(o, s.Catalog())
 }
 
-// buildFresh reads fresh specs: window (hours, 48), min_impressions (20),
-// pool (500), prior_a (1), prior_b (1), boost (ContentBoost, 4), content
-// (0/1: prefer items like the session through the set's default content
-// model, 1).
+// buildFresh reads fresh specs: window (hours, 48), pool (500), prior_a
+// (1), prior_b (1), boost (ContentBoost, 4), content (0/1: prefer items
+// like the session through the set's default content model, 1).
+// min_impressions, which kept old items fresh while rarely shown, is gone
+// (fresh means new); 0, what it now always is, is still accepted so older
+// specs keep working.
 func buildFresh(s *Set, p *params) (Model, error) {
 	o := DefaultFreshOptions()
 	o.Window = p.hours("window", o.Window)
-	o.MinImpressions = p.Int("min_impressions", o.MinImpressions, 0)
+	if n := p.Int("min_impressions", 0, 0); n != 0 {
+		p.fail(fmt.Errorf("%w: fresh: min_impressions=%d: an item is fresh only within its window (min_impressions is gone; only 0 is accepted)", ErrBadSpec, n))
+	}
 	o.MaxPool = p.Int("pool", o.MaxPool, 1)
 	o.PriorA = p.positive("prior_a", o.PriorA)
 	o.PriorB = p.positive("prior_b", o.PriorB)

@@ -23,15 +23,21 @@ type EngineOptions struct {
 	// Blend is the spec of the blend that answers queries (default
 	// "blend"). It is built alongside Pipeline.Models.
 	Blend string
-	// ExploreEvery gives one exploration slot per this many answers
-	// (default 10: one slot in a list of 10, two in 20); 0 turns
-	// exploration of fresh items off.
-	ExploreEvery int
+	// ExploreShare is the share of all answered slots that explore fresh
+	// items (default models.DefaultExploreShare, 10 %), at most one per
+	// answer and never the first (see models.Fresh.Explore); 0 turns
+	// exploration and the fresh flags off.
+	ExploreShare float64
 	// Fresh is the spec of the exploration model (default "fresh").
 	Fresh string
-	// ExploreSeed seeds the exploration draws; with a fixed seed the same
-	// request number draws the same way.
+	// ExploreSeed seeds the exploration draws, which are a function of the
+	// seed and the answer's request id (models.ExploreRand).
 	ExploreSeed uint64
+	// RequestPrefix starts every request id ("<prefix>-<counter>"). Empty
+	// (the default) draws 64 random bits per process, so ids, and the
+	// draws seeded by them, never repeat across restarts or replicas; a
+	// fixed prefix makes both reproducible (tests, replay).
+	RequestPrefix string
 	// FlushInterval bounds the time between flushes (default 2s). A flush
 	// rewrites every neighbour row changed since the last one, so flushing
 	// less often writes less: at 120k events a flush, 2 s at 60k events/s,
@@ -62,7 +68,7 @@ func DefaultEngineOptions() EngineOptions {
 	return EngineOptions{
 		Pipeline:       DefaultPipelineOptions(),
 		Blend:          models.DefaultBlendSpec,
-		ExploreEvery:   10,
+		ExploreShare:   models.DefaultExploreShare,
 		Fresh:          "fresh",
 		FlushInterval:  2 * time.Second,
 		FlushEvents:    200_000,
@@ -101,15 +107,18 @@ func (o *EngineOptions) validate() error {
 	if o.Logger == nil {
 		o.Logger = slog.New(slog.DiscardHandler)
 	}
-	if o.ExploreEvery < 0 {
-		return fmt.Errorf("%w: ExploreEvery %d is negative", ErrBadOption, o.ExploreEvery)
+	if !(o.ExploreShare >= 0 && o.ExploreShare <= 1) {
+		return fmt.Errorf("%w: ExploreShare %g is not from 0 to 1", ErrBadOption, o.ExploreShare)
+	}
+	if len(o.RequestPrefix) > 64 {
+		return fmt.Errorf("%w: RequestPrefix is %d bytes, at most 64", ErrBadOption, len(o.RequestPrefix))
 	}
 	if o.Fresh == "" {
 		o.Fresh = d.Fresh
 	}
 	// trending answers empty sessions by the request's context.
 	need := []string{o.Blend, "trending"}
-	if o.ExploreEvery > 0 {
+	if o.ExploreShare > 0 {
 		need = append(need, o.Fresh)
 	}
 	for _, n := range need {
@@ -144,6 +153,8 @@ type Engine struct {
 	fresh *models.Fresh
 	trend *models.Trending
 	reqNo atomic.Uint64
+	// reqPrefix starts every request id; see EngineOptions.RequestPrefix.
+	reqPrefix string
 
 	// mu protects the pipeline's models and dictionary: the consumer
 	// goroutine applies under the write lock, queries read under the
@@ -202,7 +213,10 @@ func NewEngine(ctx context.Context, st *store.Store, dlq DeadLetterer, opts Engi
 			e.trend = t
 		}
 	}
-	if opts.ExploreEvery > 0 {
+	if e.reqPrefix = opts.RequestPrefix; e.reqPrefix == "" {
+		e.reqPrefix = randomPrefix()
+	}
+	if opts.ExploreShare > 0 {
 		fm, _ := p.Set.Get(opts.Fresh)
 		if e.fresh, ok = fm.(*models.Fresh); !ok {
 			return nil, fmt.Errorf("%w: Fresh %q is not a fresh-item model", ErrBadOption, opts.Fresh)

@@ -80,19 +80,8 @@ type Server struct {
 	rejected prometheus.Counter
 	bufs     sync.Pool // *[]byte response buffers of postNext
 	hist     *history  // recent figures for the operator page's charts
-
-	servedMu    sync.Mutex
-	served      []stream.Served // records not yet on the log
-	servedTimer bool            // a FlushServed is scheduled
+	answers  answerLog // recent answers' sessions, for POST /v1/shown (shown.go)
 }
-
-// servedDelay is how long served records wait to share one log message;
-// servedBatch how many fill one. A click credited to an exploration slot
-// comes seconds after the answer, well after the record is applied.
-const (
-	servedDelay = 20 * time.Millisecond
-	servedBatch = 200
-)
 
 // NewServer returns the HTTP API; pub may be nil for a read-only server.
 func NewServer(eng *Engine, pub Publisher, opts ServerOptions) *Server {
@@ -111,6 +100,7 @@ func NewServer(eng *Engine, pub Publisher, opts ServerOptions) *Server {
 	s.route("POST /v1/items", s.guard(s.postItems))
 	s.route("GET /v1/sessions/{id}/next", s.sessionNext)
 	s.route("DELETE /v1/sessions/{id}", s.guard(s.forgetSession))
+	s.route("POST /v1/shown", s.guard(s.postShown))
 	s.route("POST /v1/next", s.postNext)
 	s.route("POST /v1/score", s.postScore)
 	s.route("POST /v1/next/batch", s.postNextBatch)
@@ -418,63 +408,8 @@ func (s *Server) doNext(b nextBody) (NextResult, *apiError) {
 		req.PreferItems, req.PreferCategories = b.Prefer.Items, b.Prefer.Categories
 	}
 	res := s.eng.Next(req)
-	s.recordServed(b.Session, &res)
+	s.answers.note(b.Session, &res)
 	return res, nil
-}
-
-// recordServed puts the fresh items an answer showed (in exploration slots
-// or ranked on their own) on the log, so every replica counts the same
-// impressions and credits a later click by the session.
-func (s *Server) recordServed(session string, res *NextResult) {
-	if s.pub == nil {
-		return
-	}
-	var items []string
-	for _, it := range res.Items {
-		if it.Fresh {
-			items = append(items, it.Item)
-		}
-	}
-	if len(items) == 0 {
-		return
-	}
-	rec := stream.Served{Session: session, Items: items, TS: res.TS, Request: res.Request}
-	s.servedMu.Lock()
-	s.served = append(s.served, rec)
-	var full []stream.Served
-	if len(s.served) >= servedBatch {
-		full, s.served = s.served, nil
-	} else if !s.servedTimer {
-		s.servedTimer = true
-		time.AfterFunc(servedDelay, s.FlushServed)
-	}
-	s.servedMu.Unlock()
-	s.publishServed(full)
-}
-
-// FlushServed puts the served records gathered so far on the log; the
-// service calls it at shutdown, before the bus closes.
-func (s *Server) FlushServed() {
-	s.servedMu.Lock()
-	batch := s.served
-	s.served, s.servedTimer = nil, false
-	s.servedMu.Unlock()
-	s.publishServed(batch)
-}
-
-func (s *Server) publishServed(batch []stream.Served) {
-	var c stream.Control
-	switch {
-	case len(batch) == 0 || s.pub == nil:
-		return
-	case len(batch) == 1:
-		c.Served = &batch[0]
-	default:
-		c.ServedBatch = batch
-	}
-	if err := s.pub.PublishControlAsync(c); err != nil {
-		s.opts.Logger.Debug("recording served items failed", "err", err, "records", len(batch))
-	}
 }
 
 // doScore validates and answers one score request.

@@ -21,7 +21,7 @@ func checkEngineOptions(o EngineOptions) error {
 	if m, _ := p.Set.Get(o.Blend); !isBlend(m) {
 		return fmt.Errorf("%w: Blend %q is not a blend", ErrBadOption, o.Blend)
 	}
-	if o.ExploreEvery > 0 {
+	if o.ExploreShare > 0 {
 		if m, _ := p.Set.Get(o.Fresh); !isFresh(m) {
 			return fmt.Errorf("%w: Fresh %q is not a fresh-item model", ErrBadOption, o.Fresh)
 		}

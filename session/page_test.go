@@ -58,7 +58,7 @@ func newPageService(t *testing.T) (*Service, http.Handler) {
 		// Pin the blend: the hand-computed features and scores below are
 		// for exactly these signals and weights, whatever the default.
 		o.Engine.Blend = pageBlend
-		o.Engine.ExploreEvery = 0 // the page shows the blend's own ranking here
+		o.Engine.ExploreShare = 0 // the page shows the blend's own ranking here
 		o.Engine.Pipeline.Models = []string{pageBlend}
 	})
 	t.Cleanup(func() { shutdown(t, svc) })

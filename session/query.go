@@ -1,7 +1,9 @@
 package session
 
 import (
-	"fmt"
+	"crypto/rand"
+	"encoding/hex"
+	"strconv"
 	"time"
 
 	"waymark/models"
@@ -36,9 +38,11 @@ type Recommendation struct {
 	Item     string             `json:"item"`
 	Score    float64            `json:"score"`
 	Features map[string]float64 `json:"features,omitempty"`
-	// Explore marks a fresh item placed in an exploration slot by
-	// Thompson sampling rather than by its blended score; Fresh marks any
-	// item still in its freshness window, whose impressions are counted.
+	// Explore marks the answer's exploration slot (at most one, never the
+	// first): a fresh item placed by Thompson sampling rather than by its
+	// blended score. Fresh marks any item new by event time (first seen
+	// within the freshness window); its impressions count when a caller
+	// reports it shown (POST /v1/shown).
 	Explore bool `json:"explore,omitempty"`
 	Fresh   bool `json:"fresh,omitempty"`
 }
@@ -54,8 +58,8 @@ type NextResult struct {
 	// Known and Unknown count the session's items the models know.
 	Known   int `json:"known"`
 	Unknown int `json:"unknown"`
-	// Request identifies the response, so what it showed can be tied to
-	// later clicks.
+	// Request identifies the response, unique across restarts and
+	// replicas, so the caller can report what it showed (POST /v1/shown).
 	Request string `json:"request"`
 	// Skipped names signals left out to stay within the time budget.
 	Skipped []string `json:"skipped,omitempty"`
@@ -120,11 +124,10 @@ func (e *Engine) Next(req NextRequest) NextResult {
 		res.Items[i] = Recommendation{Item: e.p.Dict.Name(it.Item), Score: it.Score, Features: f}
 	}
 	res.Skipped = r.Skipped
-	reqNo := e.reqNo.Add(1)
-	res.Request = fmt.Sprintf("%x-%d", e.opts.ExploreSeed, reqNo)
+	res.Request = e.reqPrefix + "-" + strconv.FormatUint(e.reqNo.Add(1), 16)
 	res.TS = q.Now
 	if bu.Deadline.IsZero() || time.Now().Before(bu.Deadline) {
-		e.exploreLocked(&q, req.K, skip, r.Items, &res, reqNo)
+		e.exploreLocked(&q, req.K, skip, r.Items, &res)
 	} else {
 		res.Skipped = append(res.Skipped, "explore")
 	}
@@ -284,45 +287,34 @@ func (e *Engine) ForgetSession(id string) bool {
 	return tracked
 }
 
-// exploreLocked gives fresh items the last slots of the answer, one per
-// ExploreEvery answers, chosen by Thompson sampling over their impressions
-// and clicks. Fresh items the blend ranked on its own count toward the
-// slots and keep their places; only items that are not fresh are displaced,
-// from the bottom, and never the best answer.
-func (e *Engine) exploreLocked(q *models.Query, k int, skip func(models.ItemID) bool, ranked []models.Scored, res *NextResult, reqNo uint64) {
-	if e.fresh == nil || e.opts.ExploreEvery <= 0 || k < 2 {
+// exploreLocked flags the fresh items of an answer and gives it at most
+// one exploration slot, by the share of slots the engine explores (see
+// models.Fresh.Explore). The draw is seeded by the seed and the request id
+// alone, so an answer is reproducible from them. Nothing is written: what
+// was shown counts only when the caller reports it (POST /v1/shown).
+func (e *Engine) exploreLocked(q *models.Query, k int, skip func(models.ItemID) bool, ranked []models.Scored, res *NextResult) {
+	if e.fresh == nil {
 		return
 	}
-	slots := (k + e.opts.ExploreEvery - 1) / e.opts.ExploreEvery
-	shown := make(map[models.ItemID]bool, len(ranked))
 	for i, it := range ranked {
-		shown[it.Item] = true
-		if e.fresh.IsFresh(it.Item, q.Now) {
-			res.Items[i].Fresh = true
-			slots--
-		}
+		res.Items[i].Fresh = e.fresh.IsFresh(it.Item, q.Now)
 	}
-	if slots <= 0 {
+	x, ok := e.fresh.Explore(q, e.opts.ExploreShare, k, ranked, models.ExploreRand(e.opts.ExploreSeed, res.Request), skip)
+	if !ok {
 		return
 	}
-	rng := models.NewExploreRand(e.opts.ExploreSeed, reqNo)
-	picks := e.fresh.Pick(q, slots, rng, func(id models.ItemID) bool {
-		return shown[id] || (skip != nil && skip(id))
-	}, nil)
-	pos := len(ranked) - 1
-	for _, p := range picks {
-		rec := Recommendation{Item: e.p.Dict.Name(p.Item), Explore: true, Fresh: true}
-		if len(res.Items) < k {
-			res.Items = append(res.Items, rec)
-			continue
-		}
-		for pos >= 1 && e.fresh.IsFresh(ranked[pos].Item, q.Now) {
-			pos--
-		}
-		if pos < 1 {
-			return
-		}
-		res.Items[pos] = rec
-		pos--
+	rec := Recommendation{Item: e.p.Dict.Name(x.Item), Explore: true, Fresh: true}
+	if x.Slot == len(res.Items) {
+		res.Items = append(res.Items, rec)
+	} else {
+		res.Items[x.Slot] = rec
 	}
+}
+
+// randomPrefix returns 64 random bits in hex: the request id prefix of
+// one process.
+func randomPrefix() string {
+	var b [8]byte
+	_, _ = rand.Read(b[:]) // crypto/rand.Read never fails (Go 1.24+)
+	return hex.EncodeToString(b[:])
 }

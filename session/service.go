@@ -402,9 +402,6 @@ func (s *Service) Shutdown(ctx context.Context) error {
 	if s.micro != nil {
 		_ = s.micro.Stop()
 	}
-	if s.api != nil {
-		s.api.FlushServed() // before the bus closes
-	}
 	if s.cons != nil {
 		s.cons.Stop()
 	}

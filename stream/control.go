@@ -11,12 +11,13 @@ import (
 type Control struct {
 	// Forget names a session whose data every replica deletes.
 	Forget string `json:"forget,omitempty"`
-	// Served records items a response showed in its exploration slots, so
-	// every replica counts the same impressions and credits a later click.
+	// Served records the items a caller reported it displayed for one
+	// answer (POST /v1/shown), so every replica counts the same
+	// impressions of fresh items and credits a later click.
 	Served *Served `json:"served,omitempty"`
-	// ServedBatch is several responses' Served records in one message:
-	// serve gathers them for a few milliseconds, so exploration under load
-	// costs one log message per batch rather than one per response.
+	// ServedBatch is several Served records in one message. Serve no
+	// longer publishes it (older versions did, for every answer); it is
+	// still applied, so older logs replay the same.
 	ServedBatch []Served `json:"served_batch,omitempty"`
 	// Prior carries one item's neighbours imported from another
 	// deployment (waymark priors import).
@@ -57,26 +58,38 @@ func (r *PriorRow) Validate() error {
 	return nil
 }
 
-// Served is one response's exploration items.
+// Served is what one answer showed: the items displayed, in order.
 type Served struct {
-	Session string   `json:"session,omitempty"` // empty for a sequence sent by the caller
+	Session string   `json:"session,omitempty"` // empty when none is known
 	Items   []string `json:"items"`
-	TS      int64    `json:"ts"` // event time of the response
+	TS      int64    `json:"ts"` // event time of the answer
 	Request string   `json:"request,omitempty"`
 }
 
-// MaxServedBatch bounds the records of one served_batch message.
-const MaxServedBatch = 1000
+// MaxServedBatch bounds the records of one served_batch message;
+// MaxServedItems the items of one record; MaxRequestBytes a request id.
+const (
+	MaxServedBatch  = 1000
+	MaxServedItems  = 1000
+	MaxRequestBytes = 128
+)
 
-func (s *Served) validate(field string) error {
-	if err := validateID(field+".session", s.Session, MaxSessionBytes, false, true, ErrInvalidEvent); err != nil {
+// Validate checks a record's ids and sizes, naming fields as the HTTP
+// body of POST /v1/shown does.
+func (s *Served) Validate() error { return s.validate("") }
+
+func (s *Served) validate(prefix string) error {
+	if err := validateID(prefix+"request", s.Request, MaxRequestBytes, false, true, ErrInvalidEvent); err != nil {
 		return err
 	}
-	if len(s.Items) == 0 || len(s.Items) > 1000 {
-		return &FieldError{Field: field + ".items", Reason: "must hold 1 to 1000 items", Err: ErrInvalidEvent}
+	if err := validateID(prefix+"session", s.Session, MaxSessionBytes, false, true, ErrInvalidEvent); err != nil {
+		return err
 	}
-	for _, it := range s.Items {
-		if err := validateID(field+".items", it, MaxItemBytes, true, true, ErrInvalidEvent); err != nil {
+	if len(s.Items) == 0 || len(s.Items) > MaxServedItems {
+		return &FieldError{Field: prefix + "items", Reason: fmt.Sprintf("must hold 1 to %d items, got %d", MaxServedItems, len(s.Items)), Err: ErrInvalidEvent}
+	}
+	for i, it := range s.Items {
+		if err := validateID(fmt.Sprintf("%sitems[%d]", prefix, i), it, MaxItemBytes, true, true, ErrInvalidEvent); err != nil {
 			return err
 		}
 	}
@@ -107,7 +120,7 @@ func DecodeControl(data []byte) (Control, error) {
 			return c, err
 		}
 	case c.Served != nil:
-		if err := c.Served.validate("served"); err != nil {
+		if err := c.Served.validate("served."); err != nil {
 			return c, err
 		}
 	case c.ServedBatch != nil:
@@ -115,7 +128,7 @@ func DecodeControl(data []byte) (Control, error) {
 			return c, &FieldError{Field: "served_batch", Reason: fmt.Sprintf("must hold 1 to %d records", MaxServedBatch), Err: ErrInvalidEvent}
 		}
 		for i := range c.ServedBatch {
-			if err := c.ServedBatch[i].validate("served_batch"); err != nil {
+			if err := c.ServedBatch[i].validate("served_batch."); err != nil {
 				return c, err
 			}
 		}

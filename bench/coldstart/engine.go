@@ -37,7 +37,11 @@ func newEngine(ctx context.Context, c engineConfig) (*engine, error) {
 	o := session.DefaultEngineOptions()
 	o.Blend = c.blend
 	o.Pipeline.Models = []string{c.blend}
-	o.ExploreEvery = c.exploreEvery
+	o.ExploreShare = 0
+	if c.exploreEvery > 0 { // the old flag's meaning, as serve's deprecated alias reads it
+		o.ExploreShare = 1 / float64(c.exploreEvery)
+	}
+	o.RequestPrefix = "coldstart" // reproducible ids, so reproducible draws
 	o.ExploreSeed = c.exploreSeed
 	o.FlushEvents = 1 << 40
 	o.FlushInterval = 1 << 62 // a run is over long before

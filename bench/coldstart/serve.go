@@ -278,9 +278,7 @@ func score(ctx context.Context, g *engine, cl *clickLog, res *serveResult, coldT
 				if it.Explore {
 					res.Explore.Shown++
 				}
-				if it.Fresh {
-					served = append(served, it.Item)
-				}
+				served = append(served, it.Item) // the simulated visitor sees the whole list
 			}
 			cold := learned[ev.Item] < coldT
 			res.Overall.add(rank, cold)
@@ -289,11 +287,11 @@ func score(ctx context.Context, g *engine, cl *clickLog, res *serveResult, coldT
 				b = i / blockEv
 			}
 			blocks[min(b, nBlocks)].add(rank, cold)
-			// What serve's HTTP layer puts on the log after answering
-			// (session.Server.recordServed), so the exploration model
-			// counts impressions and credits a later click.
-			if g.opts.ExploreEvery > 0 && len(served) > 0 {
-				res.Explore.Impressions += len(served)
+			// What a caller reports with POST /v1/shown after displaying
+			// the answer, so the exploration model counts impressions of
+			// the fresh items and credits a later click.
+			if g.opts.ExploreShare > 0 && len(served) > 0 {
+				res.Explore.Impressions += countFresh(r.Items)
 				if err := g.sendControl(ctx, stream.Control{Served: &stream.Served{Session: ev.Session, Items: served, TS: r.TS, Request: r.Request}}); err != nil {
 					return err
 				}
@@ -365,4 +363,16 @@ func writeServe(w io.Writer, r *serveResult) {
 		fmt.Fprintf(w, "  check: replay evaluator %d queries, HitRate@%d %s, MRR@%d %s; equal: %v\n", c.EvalQueries, r.K, fmtRate(&c.EvalHitRate), r.K, fmtRate(&c.EvalMRR), c.Equal)
 	}
 	fmt.Fprintf(w, "  %.1f s\n", r.Seconds)
+}
+
+// countFresh counts the answer's fresh items: the impressions a report of
+// the whole list records.
+func countFresh(items []session.Recommendation) int {
+	n := 0
+	for _, it := range items {
+		if it.Fresh {
+			n++
+		}
+	}
+	return n
 }

@@ -52,7 +52,7 @@ type serveFlags struct {
 	sync     bool
 	token    string
 	boot     bootstrapFlag
-	explore  int
+	explore  float64
 	fresh    string
 	seed     uint64
 	debug    string
@@ -92,9 +92,21 @@ func newServeFlags(name string, stderr io.Writer) *serveFlags {
 	fs.Uint64Var(&f.readyLag, "ready-lag", d.ReadyLag, "consumer lag under which /readyz answers ready")
 	fs.BoolVar(&f.sync, "sync", false, "fsync every store commit (survives power loss, slower)")
 	fs.StringVar(&f.token, "auth-token", "", "bearer `token` required by write and admin endpoints (empty: none)")
-	fs.IntVar(&f.explore, "explore-every", d.Engine.ExploreEvery, "one exploration slot for fresh items per this many answers (0: off)")
-	fs.StringVar(&f.fresh, "fresh", d.Engine.Fresh, "`spec` of the fresh-item exploration model, e.g. fresh(window=48,min_impressions=20)")
-	fs.Uint64Var(&f.seed, "explore-seed", 0, "seed of the exploration draws (fixed: reproducible)")
+	fs.Float64Var(&f.explore, "explore-share", d.Engine.ExploreShare, "`share` of all answered slots that explore new items, at most one per answer and never the first (0: off)")
+	fs.Func("explore-every", "deprecated: use --explore-share; `N` sets the share to 1/N (0: off)", func(v string) error {
+		n, err := strconv.Atoi(v)
+		switch {
+		case err != nil || n < 0:
+			return fmt.Errorf("%q: want a whole number >= 0", v)
+		case n == 0:
+			f.explore = 0
+		default:
+			f.explore = 1 / float64(n)
+		}
+		return nil
+	})
+	fs.StringVar(&f.fresh, "fresh", d.Engine.Fresh, "`spec` of the fresh-item exploration model, e.g. fresh(window=48): items first seen within the window (hours) are new")
+	fs.Uint64Var(&f.seed, "explore-seed", 0, "seed of the exploration draws, which depend on it and the request id")
 	fs.Var(&f.boot, "bootstrap", "start an empty data folder from the newest snapshot in the NATS object store, or with --bootstrap=FILE from a file of 'waymark snapshot --out'")
 	fs.StringVar(&f.debug, "debug-addr", "", "listen `address` for Go's pprof profiles (empty: off; keep it on loopback)")
 	fs.StringVar(&f.logLevel, "log-level", "info", "log `level`: debug, info, warn, error")
@@ -137,7 +149,7 @@ func (f *serveFlags) options(log *slog.Logger) (session.ServiceOptions, error) {
 	o.Bus.Replicas, o.Bus.MaxAge, o.Bus.MaxBytes = f.replicas, f.maxAge, f.maxBytes
 	o.Store.MemTableSize = f.memtable << 20
 	o.Engine.Blend = f.blend
-	o.Engine.ExploreEvery, o.Engine.ExploreSeed, o.Engine.Fresh = f.explore, f.seed, f.fresh
+	o.Engine.ExploreShare, o.Engine.ExploreSeed, o.Engine.Fresh = f.explore, f.seed, f.fresh
 	o.Engine.FlushInterval, o.Engine.FlushEvents = f.flushInt, f.flushEv
 	o.Engine.CatalogSubject = f.catalog
 	p := &o.Engine.Pipeline
