@@ -86,19 +86,23 @@ func priorsImport(ctx context.Context, args []string, stdout, stderr io.Writer) 
 	control := fs.String("control-subject", d.ControlSubject, "control `subject`")
 	mapFile := fs.String("map", "", "CSV `file` of from,to item ids (a header line is allowed); empty keeps ids as they are")
 	unmapped := fs.String("unmapped", "drop", "items missing from the map: drop or keep")
-	weight := fs.Float64("weight", 0.5, "scale of the imported weights (the priors' share next to local evidence)")
-	models := fs.String("models", "", "comma-separated exporting models to take (default all), e.g. iknn,sr")
+	weight := fs.Float64("weight", 0.5, "scale of the imported weights, more than 0 and at most 1 (the priors' share next to local evidence)")
+	models := fs.String("models", "", "comma-separated exporting models to take (default all): iknn, markov, sr")
 	if err := fs.Parse(args); err != nil {
 		if errors.Is(err, flag.ErrHelp) {
 			return 0
 		}
 		return 2
 	}
-	if fs.NArg() != 1 || !(*weight > 0) || (*unmapped != "drop" && *unmapped != "keep") {
+	if fs.NArg() != 1 || (*unmapped != "drop" && *unmapped != "keep") {
 		fmt.Fprintln(stderr, "usage: waymark priors import [--map FILE] [--weight W] [--unmapped drop|keep] FILE")
 		return 2
 	}
 	o := session.PriorsImport{KeepUnmapped: *unmapped == "keep", Weight: *weight, Models: session.ParseModelList(*models)}
+	if err := o.Validate(); err != nil {
+		fmt.Fprintln(stderr, "waymark priors import:", err)
+		return 2
+	}
 	if *mapFile != "" {
 		var err error
 		if o.IDMap, err = session.ReadIDMap(*mapFile); err != nil {
@@ -112,6 +116,16 @@ func priorsImport(ctx context.Context, args []string, stdout, stderr io.Writer) 
 		return 1
 	}
 	defer f.Close()
+	// Check the whole file before publishing any of it: a bad line in
+	// the middle must not leave half an import on the log.
+	if _, _, err := session.ReadPriors(f, o, func(stream.PriorRow) error { return nil }); err != nil {
+		fmt.Fprintf(stderr, "waymark priors import: %s: %v\n", fs.Arg(0), err)
+		return 1
+	}
+	if _, err := f.Seek(0, io.SeekStart); err != nil {
+		fmt.Fprintln(stderr, "waymark priors import:", err)
+		return 1
+	}
 	bo := d
 	bo.URL, bo.CredsFile, bo.Stream, bo.ControlSubject, bo.Name = *url, *creds, *streamName, *control, "waymark-priors"
 	bus, err := stream.Connect(ctx, bo)
