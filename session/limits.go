@@ -142,6 +142,9 @@ func newLimiter(l Limits, reg prometheus.Registerer) *limiter {
 			Name: "waymark_publish_failures_total", Help: "Writes the bus did not take, by kind (events, items, forget, served); each is also logged at WARN.",
 		}, []string{"kind"}),
 	}
+	for _, kind := range []string{"events", "items", "forget", "served"} {
+		lim.publishFailure.WithLabelValues(kind) // a series at 0 from the start, so rate() and alerts see the first failure
+	}
 	if l.MaxInFlight > 0 {
 		lim.sem = make(chan struct{}, l.MaxInFlight)
 	}
@@ -166,20 +169,32 @@ func capped(pattern string) bool {
 // A capped request's body is read before its slot is taken: a client that
 // stalls its body then holds a connection until the read timeout, not one
 // of the few slots that answer everybody.
+//
+// Once the request is read whole, the read deadline is lifted: net/http
+// watches the connection with a background read under the same deadline
+// and cancels the request's context when it fires, which would cut a
+// snapshot to the bus or a slow publish at ReadTimeout. The handler stays
+// bounded by WriteTimeout; the next request sets its own deadlines.
 func (s *Server) admit(pattern string, w http.ResponseWriter, r *http.Request) (release func(), ok bool) {
+	rc := http.NewResponseController(w)
 	if strings.Contains(pattern, " /v1/admin/") {
-		_ = http.NewResponseController(w).SetWriteDeadline(time.Time{})
+		_ = rc.SetWriteDeadline(time.Time{})
 	}
+	read := r.ContentLength == 0 || r.Body == nil || r.Body == http.NoBody
 	if !capped(pattern) || s.lim.sem == nil {
+		if read {
+			_ = rc.SetReadDeadline(time.Time{})
+		}
 		return func() {}, true
 	}
-	if r.ContentLength != 0 && r.Body != nil && r.Body != http.NoBody {
+	if !read {
 		b, ok := s.readBody(w, r)
 		if !ok {
 			return nil, false
 		}
 		r.Body = &prereadBody{b: b}
 	}
+	_ = rc.SetReadDeadline(time.Time{})
 	select {
 	case s.lim.sem <- struct{}{}:
 	default:

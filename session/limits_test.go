@@ -7,6 +7,7 @@ import (
 	"io"
 	"net"
 	"net/http"
+	"net/http/httptest"
 	"os"
 	"strings"
 	"testing"
@@ -220,7 +221,7 @@ func TestInFlightCap(t *testing.T) {
 	// Take every slot as requests being answered would.
 	var releases []func()
 	for i := 0; i < max; i++ {
-		rel, ok := s.api.admit("POST /v1/next", nil, &http.Request{})
+		rel, ok := s.api.admit("POST /v1/next", httptest.NewRecorder(), &http.Request{})
 		if !ok {
 			t.Fatalf("slot %d of %d not free", i+1, max)
 		}
