@@ -50,6 +50,8 @@ type ServerOptions struct {
 	Gatherer   prometheus.Gatherer
 	Registerer prometheus.Registerer
 	Logger     *slog.Logger
+	// Limits bound in-flight requests and batch work (limits.go).
+	Limits Limits
 }
 
 func (o *ServerOptions) validate() {
@@ -68,6 +70,7 @@ func (o *ServerOptions) validate() {
 	if o.Ready == nil {
 		o.Ready = func() (bool, string) { return true, "" }
 	}
+	o.Limits = o.Limits.withDefaults()
 }
 
 // Server is the HTTP API over an engine.
@@ -81,6 +84,7 @@ type Server struct {
 	bufs     sync.Pool // *[]byte response buffers of postNext
 	hist     *history  // recent figures for the operator page's charts
 	answers  answerLog // recent answers' sessions, for POST /v1/shown (shown.go)
+	lim      *limiter
 }
 
 // NewServer returns the HTTP API; pub may be nil for a read-only server.
@@ -96,6 +100,7 @@ func NewServer(eng *Engine, pub Publisher, opts ServerOptions) *Server {
 	if opts.Registerer != nil {
 		opts.Registerer.MustRegister(s.requests, s.rejected)
 	}
+	s.lim = newLimiter(opts.Limits, opts.Registerer)
 	s.route("POST /v1/events", s.guard(s.postEvents))
 	s.route("POST /v1/items", s.guard(s.postItems))
 	s.route("GET /v1/sessions/{id}/next", s.sessionNext)
@@ -135,6 +140,9 @@ func (w *statusWriter) WriteHeader(code int) {
 	w.ResponseWriter.WriteHeader(code)
 }
 
+// Unwrap lets http.ResponseController reach the connection's deadlines.
+func (w *statusWriter) Unwrap() http.ResponseWriter { return w.ResponseWriter }
+
 func (s *Server) route(pattern string, h http.HandlerFunc) {
 	query := strings.Contains(pattern, "/next") || strings.Contains(pattern, "/score")
 	s.mux.HandleFunc(pattern, func(w http.ResponseWriter, r *http.Request) {
@@ -152,6 +160,11 @@ func (s *Server) route(pattern string, h http.HandlerFunc) {
 			s.requests.WithLabelValues(pattern, strconv.Itoa(sw.code)).Inc()
 		}()
 		r.Body = http.MaxBytesReader(sw, r.Body, s.opts.MaxBody)
+		release, ok := s.admit(pattern, sw, r)
+		if !ok {
+			return
+		}
+		defer release()
 		h(sw, r)
 	})
 }
@@ -188,12 +201,20 @@ func writeError(w http.ResponseWriter, code int, errCode, msg string) {
 
 // readBody reads the whole body, answering 413 or 400 itself on failure.
 func (s *Server) readBody(w http.ResponseWriter, r *http.Request) ([]byte, bool) {
+	if pr, ok := r.Body.(*prereadBody); ok {
+		return pr.b, true
+	}
 	b, err := io.ReadAll(r.Body)
 	if err != nil {
 		var mbe *http.MaxBytesError
 		if errors.As(err, &mbe) {
 			writeError(w, http.StatusRequestEntityTooLarge, CodeBodyTooLarge,
 				fmt.Sprintf("request body exceeds %d bytes", mbe.Limit))
+			return nil, false
+		}
+		if readTimedOut(err) {
+			writeError(w, http.StatusRequestTimeout, CodeRequestTimeout,
+				fmt.Sprintf("the body did not arrive within %s (serve's read timeout)", s.opts.Limits.ReadTimeout))
 			return nil, false
 		}
 		writeError(w, http.StatusBadRequest, CodeInvalidJSON, "reading body: "+err.Error())
@@ -244,9 +265,18 @@ func (s *Server) checkK(k *int) (int, error) {
 	return *k, nil
 }
 
+// validID applies the write rules to an id a request names, so a read
+// never takes an id the log would reject (and, before, dead-letter).
 func validID(what, id string, maxLen int) error {
 	if id == "" || len(id) > maxLen {
 		return fmt.Errorf("%s id must be 1 to %d bytes, got %d", what, maxLen, len(id))
+	}
+	if err := stream.CheckID(what, id, maxLen); err != nil {
+		var fe *stream.FieldError
+		if errors.As(err, &fe) {
+			return fmt.Errorf("%s id %s", what, fe.Reason)
+		}
+		return err
 	}
 	return nil
 }
@@ -455,6 +485,10 @@ func serveBatch[Req, Res any](s *Server, w http.ResponseWriter, r *http.Request,
 		writeAPIError(w, badParam("requests: %d entries, at most %d", len(body.Requests), maxBatch))
 		return
 	}
+	if aerr := checkBatchBudget(s, body.Requests); aerr != nil {
+		writeAPIError(w, aerr)
+		return
+	}
 	rep := batchReply{Results: make([]batchEntry, len(body.Requests))}
 	for i, b := range body.Requests {
 		res, aerr := do(b)
@@ -520,7 +554,7 @@ func (s *Server) forgetSession(w http.ResponseWriter, r *http.Request) {
 	ctx, cancel := context.WithTimeout(r.Context(), 10*time.Second)
 	defer cancel()
 	seq, err := s.pub.PublishControl(ctx, stream.Control{Forget: id})
-	if err != nil {
+	if s.published("forget", 1, err) != nil {
 		writeError(w, http.StatusServiceUnavailable, CodeUnavailable, "publish to the bus: "+err.Error())
 		return
 	}
@@ -622,10 +656,13 @@ func (s *Server) postEvents(w http.ResponseWriter, r *http.Request) {
 		}
 		ev, err := stream.DecodeJSON(rec)
 		if err == nil {
+			err = s.eventFitsBus(&ev)
+		}
+		if err == nil {
 			evs = append(evs, ev)
 		}
 		return err
-	}, func(ctx context.Context) error { return s.pub.PublishEvents(ctx, evs) })
+	}, func(ctx context.Context) error { return s.published("events", len(evs), s.pub.PublishEvents(ctx, evs)) })
 }
 
 func (s *Server) postItems(w http.ResponseWriter, r *http.Request) {
@@ -636,14 +673,18 @@ func (s *Server) postItems(w http.ResponseWriter, r *http.Request) {
 		}
 		it, err := stream.DecodeItemJSON(rec)
 		if err == nil {
+			err = s.itemFitsBus(&it)
+		}
+		if err == nil {
 			recs = append(recs, it)
 		}
 		return err
-	}, func(ctx context.Context) error { return s.pub.PublishItems(ctx, recs) })
+	}, func(ctx context.Context) error { return s.published("items", len(recs), s.pub.PublishItems(ctx, recs)) })
 }
 
-// ingest decodes a batch record by record, publishes the valid ones and
-// reports the rest by line.
+// ingest decodes and checks a whole batch record by record (the message
+// size against the bus's max_payload included), then publishes the valid
+// ones and reports the rest by line.
 func (s *Server) ingest(w http.ResponseWriter, r *http.Request, decode func([]byte) error, publish func(context.Context) error) {
 	if s.pub == nil {
 		writeError(w, http.StatusServiceUnavailable, CodeUnavailable, "this server does not take writes")
@@ -673,7 +714,13 @@ func (s *Server) ingest(w http.ResponseWriter, r *http.Request, decode func([]by
 		ctx, cancel := context.WithTimeout(r.Context(), 30*time.Second)
 		defer cancel()
 		if err := publish(ctx); err != nil {
-			writeError(w, http.StatusServiceUnavailable, CodeUnavailable, "publish to the bus: "+err.Error())
+			// The bus failed part way (it has no transaction across
+			// messages): the records before the failure may be on the
+			// log. Resending is safe for events with an id (the bus
+			// drops a repeat within its duplicate window) and for
+			// catalogue records (a later record replaces the earlier).
+			writeError(w, http.StatusServiceUnavailable, CodeUnavailable,
+				"publish to the bus: "+err.Error()+"; records before the failure may have been published: resend the batch (events with an id are de-duplicated)")
 			return
 		}
 	}

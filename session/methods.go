@@ -25,12 +25,12 @@ func (s *Server) noRoute(w http.ResponseWriter, r *http.Request) {
 		}
 	}
 	if len(allow) == 0 {
-		writeError(w, http.StatusNotFound, CodeNotFound, "no route "+r.Method+" "+r.URL.Path)
+		writeError(w, http.StatusNotFound, CodeNotFound, "no route "+echo(r.Method)+" "+echo(r.URL.Path))
 		return
 	}
 	w.Header().Set("Allow", strings.Join(allow, ", "))
 	writeError(w, http.StatusMethodNotAllowed, CodeMethodNotAllowed,
-		r.URL.Path+" takes "+strings.Join(allow, ", ")+", not "+r.Method)
+		echo(r.URL.Path)+" takes "+strings.Join(allow, ", ")+", not "+echo(r.Method))
 }
 
 // catchAll is the pattern of noRoute.

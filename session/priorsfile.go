@@ -8,6 +8,7 @@ import (
 	"fmt"
 	"io"
 	"os"
+	"slices"
 	"strings"
 
 	"waymark/stream"
@@ -22,21 +23,45 @@ type PriorsImport struct {
 	// KeepUnmapped keeps items missing from IDMap under their own ids
 	// instead of dropping them.
 	KeepUnmapped bool
-	// Weight scales every imported weight (> 0).
+	// Weight scales every imported weight: more than 0, at most 1 (at 1
+	// an imported best neighbour counts like the best local one; more
+	// would let another site's clicks outweigh this site's own).
 	Weight float64
 	// Models, when not empty, takes only rows these exporting models wrote.
 	Models map[string]bool
+}
+
+// PriorModels names the models a priors export holds rows of: those
+// that can export their neighbours (models.Exporter).
+func PriorModels() []string { return []string{"iknn", "markov", "sr"} }
+
+// Validate checks the import options: the weight's range and the model
+// names.
+func (o PriorsImport) Validate() error {
+	if !(o.Weight > 0 && o.Weight <= 1) {
+		return fmt.Errorf("priors: weight %g: must be more than 0 and at most 1", o.Weight)
+	}
+	for m := range o.Models {
+		if !slices.Contains(PriorModels(), m) {
+			return fmt.Errorf("priors: unknown model %q: an export holds rows of %s", m, strings.Join(PriorModels(), ", "))
+		}
+	}
+	return nil
 }
 
 // ReadPriors reads a priors file from r: its header line, then one row per
 // line, mapped by o (ids through the map, weights scaled; a row left with
 // no neighbours is dropped). It calls each with every row to import, in
 // file order, and returns how many it imported and how many it dropped.
-// Errors name the line; each's error stops the read and is returned.
+// Errors name the line; each's error stops the read and is returned. A
+// file with no header, a row of an unknown model or a weight outside
+// [0, 1], and a file that leaves nothing to import are errors: run it once
+// with an each that does nothing to check a whole file before publishing.
 func ReadPriors(r io.Reader, o PriorsImport, each func(stream.PriorRow) error) (rows, dropped int, err error) {
-	if !(o.Weight > 0) {
-		return 0, 0, fmt.Errorf("priors: weight %g must be > 0", o.Weight)
+	if err := o.Validate(); err != nil {
+		return 0, 0, err
 	}
+	header, skipped := false, 0
 	mapID := func(id string) (string, bool) {
 		if o.IDMap == nil {
 			return id, true
@@ -57,13 +82,23 @@ func ReadPriors(r io.Reader, o PriorsImport, each func(stream.PriorRow) error) (
 			if err := json.Unmarshal(sc.Bytes(), &hdr); err != nil || hdr.Format != PriorsFormat || hdr.Version != 1 {
 				return rows, dropped, fmt.Errorf("the first line is not a %s version 1 header", PriorsFormat)
 			}
+			header = true
 			continue
 		}
 		var row stream.PriorRow
 		if err := json.Unmarshal(sc.Bytes(), &row); err != nil {
 			return rows, dropped, fmt.Errorf("line %d: %w", line, err)
 		}
+		if !slices.Contains(PriorModels(), row.Model) {
+			return rows, dropped, fmt.Errorf("line %d: model %q: an export holds rows of %s", line, row.Model, strings.Join(PriorModels(), ", "))
+		}
+		for _, n := range row.Neighbors {
+			if !(n.Weight >= 0 && n.Weight <= 1) {
+				return rows, dropped, fmt.Errorf("line %d: neighbour %q: weight %g outside [0, 1], the range of an export", line, n.Item, n.Weight)
+			}
+		}
 		if len(o.Models) > 0 && !o.Models[row.Model] {
+			skipped++
 			continue
 		}
 		item, ok := mapID(row.Item)
@@ -89,7 +124,15 @@ func ReadPriors(r io.Reader, o PriorsImport, each func(stream.PriorRow) error) (
 		}
 		rows++
 	}
-	return rows, dropped, sc.Err()
+	switch {
+	case sc.Err() != nil:
+		return rows, dropped, sc.Err()
+	case !header:
+		return rows, dropped, fmt.Errorf("the file is empty: no %s header line", PriorsFormat)
+	case rows == 0:
+		return rows, dropped, fmt.Errorf("nothing to import: %d rows dropped as unmapped or left without neighbours, %d of other models", dropped, skipped)
+	}
+	return rows, dropped, nil
 }
 
 // ReadIDMap reads a CSV file of from,to item id pairs; a first line

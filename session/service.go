@@ -53,6 +53,9 @@ type ServiceOptions struct {
 	MaxAckPending int
 	// Token, when set, guards write and admin HTTP endpoints.
 	Token string
+	// Limits bound the HTTP API's connections, timeouts, in-flight
+	// requests and batch work (zero fields: DefaultLimits).
+	Limits Limits
 	// Bootstrap loads the newest snapshot from the NATS object store into
 	// an empty data folder before starting, so a new replica replays only
 	// what came after the snapshot.
@@ -86,6 +89,7 @@ func DefaultServiceOptions() ServiceOptions {
 		ReadyLag:      1000,
 		Batch:         1000,
 		MaxAckPending: 800_000,
+		Limits:        DefaultLimits(),
 	}
 }
 
@@ -239,7 +243,7 @@ func Open(ctx context.Context, opts ServiceOptions) (_ *Service, err error) {
 	go s.pollStream(runCtx)
 	srv := NewServer(s.eng, busPublisher{s.bus}, ServerOptions{
 		Ready: s.ready, Gatherer: s.reg, Registerer: s.reg, Logger: opts.Logger, Token: opts.Token,
-		Snapshot: s.Snapshot,
+		Snapshot: s.Snapshot, Limits: opts.Limits,
 	})
 	s.api = srv
 	if s.micro, err = srv.AddNATSService(s.bus.Conn(), Version); err != nil {
@@ -250,7 +254,8 @@ func Open(ctx context.Context, opts ServiceOptions) (_ *Service, err error) {
 		return nil, fmt.Errorf("listen %s: %w", opts.HTTPAddr, err)
 	}
 	s.httpAddr = ln.Addr().String()
-	s.http = &http.Server{Handler: srv, ReadHeaderTimeout: 10 * time.Second}
+	ln = limitListen(ln, srv.opts.Limits.MaxConns, s.reg)
+	s.http = newHTTPServer(srv, srv.opts.Limits, opts.Logger)
 	s.wg.Add(1)
 	go func() {
 		defer s.wg.Done()

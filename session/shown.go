@@ -2,6 +2,7 @@ package session
 
 import (
 	"context"
+	"encoding/json"
 	"errors"
 	"fmt"
 	"net/http"
@@ -80,10 +81,17 @@ func (s *Server) postShown(w http.ResponseWriter, r *http.Request) {
 		writeJSON(w, http.StatusOK, reply)
 		return
 	}
+	c := stream.Control{Served: &rec}
+	if raw, err := json.Marshal(c); err == nil {
+		if err := s.fitsBus(len(raw)); err != nil {
+			writeAPIError(w, badParam("%v", err))
+			return
+		}
+	}
 	ctx, cancel := context.WithTimeout(r.Context(), 10*time.Second)
 	defer cancel()
-	seq, err := s.pub.PublishControl(ctx, stream.Control{Served: &rec})
-	if err != nil {
+	seq, err := s.pub.PublishControl(ctx, c)
+	if err = s.published("served", 1, err); err != nil {
 		writeError(w, http.StatusServiceUnavailable, CodeUnavailable, "publish to the bus: "+err.Error())
 		return
 	}

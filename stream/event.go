@@ -137,6 +137,14 @@ func (e *Event) validate(chars bool) error {
 	return validateID("id", e.ID, MaxIDBytes, false, chars, ErrInvalidEvent)
 }
 
+// CheckID checks s as every write checks a session or item id: 1 to max
+// bytes, valid UTF-8, no control characters. The error is a *FieldError
+// naming field. Reads apply it too, so a query never takes an id the log
+// would reject.
+func CheckID(field, s string, max int) error {
+	return validateID(field, s, max, true, true, ErrInvalidEvent)
+}
+
 // validateID checks an identifier: length bounds, valid UTF-8 and no control
 // characters. Ids end up in logs, CSV exports and HTTP paths, where a newline
 // or a broken byte sequence does damage far from its source, so they are

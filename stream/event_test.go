@@ -293,3 +293,36 @@ func TestEventJSONInterfaces(t *testing.T) {
 		t.Fatalf("invalid element: error %v, want ErrInvalidEvent", err)
 	}
 }
+
+// TestTSOutOfRangeNamesInput: a ts outside the accepted range is rejected
+// with the number or text the producer sent, not a clamped or converted
+// value (issue 12: "1e30" was reported as 253402300800000).
+func TestTSOutOfRangeNamesInput(t *testing.T) {
+	tests := []struct{ ts, want string }{
+		{`1e30`, "got 1e30"},
+		{`99999999999999999999`, "got 99999999999999999999"},
+		{`"99999999999999999999"`, "got 99999999999999999999"},
+		{`-99999999999999999999`, "got -99999999999999999999"},
+		{`-1.5e3`, "got -1.5e3"},
+		{`"0001-01-01T00:00:00Z"`, `got "0001-01-01T00:00:00Z"`},
+		{`253402300800000`, "got 253402300800000"}, // an int64 past MaxTS: Validate names it as sent
+	}
+	for _, tt := range tests {
+		t.Run(tt.ts, func(t *testing.T) {
+			line := `{"session":"s1","item":"a","ts":` + tt.ts + `}`
+			fast, errFast := DecodeJSON([]byte(line))
+			slow, errSlow := decodeSlow([]byte(line)) // the encoding/json path, validated as DecodeJSON does
+			if errSlow == nil {
+				errSlow = slow.Validate()
+			}
+			for _, err := range []error{errFast, errSlow} {
+				if err == nil {
+					t.Fatalf("%s: accepted as %+v", line, fast)
+				}
+				if !strings.Contains(err.Error(), tt.want) {
+					t.Errorf("%s: error %q does not name the input (%q)", line, err, tt.want)
+				}
+			}
+		})
+	}
+}

@@ -52,13 +52,14 @@ func parseTSNumber(tok []byte) (int64, error) {
 	if f != math.Trunc(f) {
 		return 0, eventErr("ts", "number "+truncate(s, 40)+" has a fraction; expected whole unix milliseconds")
 	}
-	// Anything beyond MaxTS is rejected by Validate; clamp first so the
-	// conversion below is defined.
+	// Beyond MaxTS the conversion below is undefined. Reject here, naming
+	// the number as written: a clamped value in the message would name a
+	// time the producer never sent.
 	if f > float64(MaxTS) {
-		return MaxTS + 1, nil
+		return 0, eventErr("ts", "must not be after year 9999, got "+truncate(s, 40))
 	}
-	if f < -float64(MaxTS) {
-		return -MaxTS - 1, nil
+	if f < 0 {
+		return 0, eventErr("ts", "must be after 1970-01-01T00:00:00Z, got "+truncate(s, 40))
 	}
 	return int64(f), nil
 }
@@ -76,6 +77,10 @@ func parseTSText(s string) (int64, error) {
 	t, err := time.Parse(time.RFC3339Nano, s)
 	if err != nil {
 		return 0, eventErr("ts", strconv.Quote(truncate(s, 40))+" is neither RFC 3339 nor unix milliseconds")
+	}
+	if t.Before(time.Unix(0, 0)) {
+		// Name the time as written, not its negative milliseconds.
+		return 0, eventErr("ts", "must be after 1970-01-01T00:00:00Z, got "+strconv.Quote(truncate(s, 40)))
 	}
 	return t.UnixMilli(), nil
 }

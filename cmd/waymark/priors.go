@@ -88,9 +88,9 @@ func priorsImport(ctx context.Context, args []string, stdout, stderr io.Writer) 
 	streamName := fs.String("stream", d.Stream, "JetStream stream `name`")
 	control := fs.String("control-subject", d.ControlSubject, "control `subject`")
 	mapFile := fs.String("map", "", "CSV `file` of from,to item ids (a header line is allowed); empty keeps ids as they are")
-	unmapped := fs.String("unmapped", "drop", "items missing from the map: `drop|keep`")
-	weight := fs.Float64("weight", 0.5, "`scale` of the imported weights (the priors' share next to local evidence)")
-	models := fs.String("models", "", "comma-separated exporting `models` to take (default all), e.g. iknn,sr")
+	unmapped := fs.String("unmapped", "drop", "items missing from the map: `drop` or `keep`")
+	weight := fs.Float64("weight", 0.5, "`scale` of the imported weights, more than 0 and at most 1 (the priors' share next to local evidence)")
+	models := fs.String("models", "", "comma-separated exporting `models` to take (default all): iknn, markov, sr")
 	const head = "usage: waymark priors import [flags] FILE\n\nPublish a priors export (stream/FORMAT.md) to this deployment's bus through an id\nmapping, scaled by --weight; every replica applies it from the log.\n\nflags:\n"
 	if code, ok := parseFlags(fs, head, args, stdout, stderr); !ok {
 		return code
@@ -98,12 +98,16 @@ func priorsImport(ctx context.Context, args []string, stdout, stderr io.Writer) 
 	switch {
 	case fs.NArg() != 1:
 		return usageError(stderr, "priors import", "give exactly one priors FILE (got %d arguments)", fs.NArg())
-	case !(*weight > 0):
-		return usageError(stderr, "priors import", "--weight %g must be above 0", *weight)
+	case !(*weight > 0 && *weight <= 1):
+		return usageError(stderr, "priors import", "--weight %g must be more than 0 and at most 1", *weight)
 	case *unmapped != "drop" && *unmapped != "keep":
 		return usageError(stderr, "priors import", "--unmapped %q must be drop or keep", *unmapped)
 	}
 	o := session.PriorsImport{KeepUnmapped: *unmapped == "keep", Weight: *weight, Models: session.ParseModelList(*models)}
+	if err := o.Validate(); err != nil {
+		fmt.Fprintln(stderr, "waymark priors import:", err)
+		return 2
+	}
 	if *mapFile != "" {
 		var err error
 		if o.IDMap, err = session.ReadIDMap(*mapFile); err != nil {
@@ -117,6 +121,16 @@ func priorsImport(ctx context.Context, args []string, stdout, stderr io.Writer) 
 		return 1
 	}
 	defer f.Close()
+	// Check the whole file before publishing any of it: a bad line in
+	// the middle must not leave half an import on the log.
+	if _, _, err := session.ReadPriors(f, o, func(stream.PriorRow) error { return nil }); err != nil {
+		fmt.Fprintf(stderr, "waymark priors import: %s: %v\n", fs.Arg(0), err)
+		return 1
+	}
+	if _, err := f.Seek(0, io.SeekStart); err != nil {
+		fmt.Fprintln(stderr, "waymark priors import:", err)
+		return 1
+	}
 	bo := d
 	nb.apply(&bo)
 	bo.Stream, bo.ControlSubject, bo.Name = *streamName, *control, "waymark-priors"

@@ -57,6 +57,7 @@ type serveFlags struct {
 	seed     uint64
 	debug    string
 	logLevel string
+	limits   session.Limits // HTTP limits (--max-inflight and the like)
 }
 
 func newServeFlags(name string, stderr io.Writer) *serveFlags {
@@ -110,6 +111,12 @@ func newServeFlags(name string, stderr io.Writer) *serveFlags {
 	fs.Var(&f.boot, "bootstrap", "start an empty data folder from the newest snapshot in the NATS object store, or with --bootstrap=FILE from a file of 'waymark snapshot --out'")
 	fs.StringVar(&f.debug, "debug-addr", "", "listen `address` for Go's pprof profiles (empty: off; keep it on loopback)")
 	fs.StringVar(&f.logLevel, "log-level", "info", "log `level`: debug, info, warn, error")
+	l := &f.limits
+	*l = d.Limits
+	fs.IntVar(&l.MaxInFlight, "max-inflight", l.MaxInFlight, "API requests answered at once; more get 429 with Retry-After (-1: no cap)")
+	fs.IntVar(&l.MaxConns, "max-conns", l.MaxConns, "open HTTP connections; more wait to be accepted (-1: no cap)")
+	fs.IntVar(&l.MaxBatchItems, "max-batch-items", l.MaxBatchItems, "items one batch may ask for (k summed over /v1/next/batch, candidates over /v1/score/batch); more get 413 (-1: no cap)")
+	fs.DurationVar(&l.ReadTimeout, "http-read-timeout", l.ReadTimeout, "time to read a whole request, body included; a stalled body is cut after it (408)")
 	return f
 }
 
@@ -167,6 +174,7 @@ func (f *serveFlags) options(log *slog.Logger) (session.ServiceOptions, error) {
 	o.Store.SyncWrites = f.sync
 	o.Token = f.token
 	o.Bootstrap, o.BootstrapFile = f.boot.on && f.boot.file == "", f.boot.file
+	o.Limits = f.limits
 	o.Logger = log
 	return o, nil
 }
