@@ -86,13 +86,21 @@ func floodRun(ctx context.Context, c config) error {
 		return err
 	}
 	start := time.Now()
-	exited, err := srv.waitAppliedOrExit(ctx, n)
+	out, err := srv.waitAppliedOrExit(ctx, n)
 	if err != nil {
 		srv.kill()
 		snd.kill()
 		return err
 	}
-	if exited {
+	if out == stalled {
+		st := lastStats(srv)
+		srv.kill()
+		snd.kill()
+		fmt.Printf("idflood: LOST EVENTS: the consumer is at the stream's end (seq %d, stream %d) with %d of %d applied, %d rejected, for %s; log: %s\n",
+			st.LastSeq, st.StreamLast, st.Applied, n, st.Rejected, stallAfter, failureLine(logPath))
+		return fmt.Errorf("idflood: %d events never applied", n-st.Applied)
+	}
+	if out == exited {
 		snd.kill()
 		srv.kill() // already gone: this reaps it and closes its log
 		st := lastStats(srv)
@@ -104,12 +112,12 @@ func floodRun(ctx context.Context, c config) error {
 			fmt.Printf("idflood: the restart exited at start: %s\n", failureLine(logPath))
 			return errors.New("idflood: serve died on the flood and does not come back")
 		}
-		exited, err := srv2.waitAppliedOrExit(ctx, n)
+		out, err := srv2.waitAppliedOrExit(ctx, n)
 		if err != nil {
 			srv2.kill()
 			return err
 		}
-		if exited {
+		if out == exited {
 			srv2.kill()
 			fmt.Printf("idflood: the restart EXITED too (%d applied): %s\n", lastStats(srv2).Applied, failureLine(logPath))
 			return errors.New("idflood: crash loop: serve dies on the flood and on every restart")
@@ -140,7 +148,7 @@ func floodRun(ctx context.Context, c config) error {
 		return fmt.Errorf("idflood: the restart after kill -9: %w: %s", err, failureLine(logPath))
 	}
 	defer srv.stop()
-	if exited, err := srv.waitAppliedOrExit(ctx, n); err != nil || exited {
+	if out, err := srv.waitAppliedOrExit(ctx, n); err != nil || out != reached {
 		return fmt.Errorf("idflood: after kill -9 the restart did not reach %d applied (%v): %s", n, err, failureLine(logPath))
 	}
 	after, _ := srv.stats(ctx)
@@ -354,21 +362,46 @@ func deleteCheckpoint(dir string, _ *rand.Rand) (string, error) {
 	return fmt.Sprintf("x/checkpoint deleted (it held seq %d, %d applied)", cp.Seq, cp.Applied), st.Close()
 }
 
-// waitAppliedOrExit polls until events_applied reaches n (false) or serve
-// exits (true).
-func (s *serve) waitAppliedOrExit(ctx context.Context, n uint64) (bool, error) {
+// outcome is how waiting for n applied events ended.
+type outcome int
+
+const (
+	reached outcome = iota // events_applied reached n
+	exited                 // serve exited
+	stalled                // the consumer is at the stream's end and the count stopped short
+)
+
+// stallAfter is how long events_applied may stay short of n, with the
+// consumer at the stream's last sequence, before the events are counted as
+// lost.
+const stallAfter = 30 * time.Second
+
+// waitAppliedOrExit polls until events_applied reaches n, serve exits, or
+// the count stalls short of n with nothing left in the stream to deliver.
+func (s *serve) waitAppliedOrExit(ctx context.Context, n uint64) (outcome, error) {
+	var since time.Time
 	for {
 		if st, err := s.stats(ctx); err == nil {
+			if st != s.last {
+				since = time.Time{}
+			}
 			s.last = st
 			if st.Applied >= n {
-				return false, nil
+				return reached, nil
+			}
+			if st.StreamLast > 0 && st.LastSeq == st.StreamLast {
+				if since.IsZero() {
+					since = time.Now()
+				} else if time.Since(since) > stallAfter {
+					return stalled, nil
+				}
 			}
 		}
 		select {
 		case <-s.done:
-			return true, nil
+			return exited, nil
 		case <-ctx.Done():
-			return false, fmt.Errorf("waiting for %d applied: %w", n, ctx.Err())
+			return reached, fmt.Errorf("waiting for %d applied: %w", n, ctx.Err())
 		case <-time.After(50 * time.Millisecond):
 		}
 	}
