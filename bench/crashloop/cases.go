@@ -68,7 +68,11 @@ func floodLines(n int) [][]byte {
 // learns all of it, then that a kill -9 and a restart keep it.
 func floodRun(ctx context.Context, c config) error {
 	n := uint64(c.events)
-	fmt.Printf("idflood: %d events, each a new session and a new item, serve at default flags\n", n)
+	flags := "default flags"
+	if len(serveArgs) > 0 {
+		flags = "default flags and " + strings.Join(serveArgs, " ")
+	}
+	fmt.Printf("idflood: %d events, each a new session and a new item, serve at %s\n", n, flags)
 	fmt.Println("idflood: promised: every event applied, no flush larger than a store transaction, the state kept across kill -9")
 	dir := filepath.Join(c.dir, "idflood")
 	ports, err := freePorts(2)

@@ -79,6 +79,10 @@ type config struct {
 	cases   string
 }
 
+// serveArgs are extra flags for every serve the program starts
+// (--serve-args); startServe reads them.
+var serveArgs []string
+
 func main() {
 	var c config
 	flag.StringVar(&c.bin, "bin", "", "waymark `binary` (empty: build ./cmd/waymark into the work folder)")
@@ -92,7 +96,9 @@ func main() {
 	flag.DurationVar(&c.timeout, "timeout", 20*time.Minute, "give up after this long")
 	flag.BoolVar(&c.verify, "verify-stream", true, "read the crash run's stream back and compare it with the events")
 	flag.StringVar(&c.cases, "case", "kills", "comma-separated `cases`: kills, idflood, corrupt-sst, truncate-sst, delete-checkpoint, or all")
+	extra := flag.String("serve-args", "", "extra `flags` for serve, space-separated (e.g. \"--flush-interval 1h\": on a slow host the 2 s interval\nflushes before --flush-events is reached, and idflood then never builds the largest flush)")
 	flag.Parse()
+	serveArgs = strings.Fields(*extra)
 	if c.events < 1 || c.kills < 0 {
 		fmt.Fprintln(os.Stderr, "crashloop: --events must be positive and --kills not negative")
 		os.Exit(2)
@@ -600,6 +606,7 @@ func startServe(ctx context.Context, bin, dir string, ports []int, logPath strin
 		"--http", fmt.Sprintf("127.0.0.1:%d", ports[0]),
 		"--nats-listen", fmt.Sprintf("127.0.0.1:%d", ports[1]),
 		"--log-level", "warn")
+	s.cmd.Args = append(s.cmd.Args, serveArgs...)
 	s.cmd.Stdout, s.cmd.Stderr = lf, lf
 	if err := s.cmd.Start(); err != nil {
 		lf.Close()
