@@ -17,9 +17,10 @@ import (
 // 4.0; see ../shared/data/README.md), items 1..17 as ids 0..16.
 func msnbcSessions(t *testing.T, n, maxLen int) [][]ItemID {
 	t.Helper()
-	f, err := os.Open("../../shared/data/msnbc/msnbc990928.seq.gz")
+	const path = "../../shared/data/msnbc/msnbc990928.seq.gz"
+	f, err := os.Open(path)
 	if err != nil {
-		t.Skipf("open dataset (../shared/data is not present here): %v", err)
+		t.Skipf("needs the open dataset %s (../shared/data beside the project): %v", path, err)
 	}
 	defer f.Close()
 	zr, err := gzip.NewReader(f)

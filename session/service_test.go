@@ -2,21 +2,15 @@ package session
 
 import (
 	"bytes"
-	"compress/gzip"
 	"context"
 	"encoding/json"
-	"errors"
 	"fmt"
 	"io"
 	"math"
 	"net/http"
-	"os"
 	"strings"
 	"testing"
 	"time"
-
-	"waymark/stream"
-	"waymark/stream/dataset"
 )
 
 // newTestService starts a whole service: embedded NATS on a free loopback
@@ -215,38 +209,6 @@ func TestServiceEndToEnd(t *testing.T) {
 	if answerKey(before) != answerKey(after) {
 		t.Fatalf("answers differ after restart:\n%v\n%v", before, after)
 	}
-}
-
-// msnbcEvents returns the first n clicks of the MSNBC.com Anonymous Web
-// Data (UCI Machine Learning Repository, CC BY 4.0; ../shared/data/README.md)
-// as events with synthetic increasing times.
-func msnbcEvents(t testing.TB, n int) []stream.Event {
-	t.Helper()
-	f, err := os.Open("../../shared/data/msnbc/msnbc990928.seq.gz")
-	if err != nil {
-		t.Skipf("dataset not present (../shared/data): %v", err)
-	}
-	defer f.Close()
-	zr, err := gzip.NewReader(f)
-	if err != nil {
-		t.Fatal(err)
-	}
-	r, err := dataset.NewMSNBCReader(zr, dataset.DefaultMSNBCOptions())
-	if err != nil {
-		t.Fatal(err)
-	}
-	out := make([]stream.Event, 0, n)
-	for len(out) < n {
-		ev, err := r.Next()
-		if errors.Is(err, io.EOF) {
-			break
-		}
-		if err != nil {
-			t.Fatal(err)
-		}
-		out = append(out, ev)
-	}
-	return out
 }
 
 // answerKey prints an answer without its request id, which differs between

@@ -27,8 +27,16 @@
 // It prints one line per kill and a summary, and exits 1 if anything
 // differs.
 //
+// --case picks what runs (cases.go describes each and what it expects):
+// kills is the loop above (the default); idflood sends events that each
+// carry a new session and a new item id to serve at default flags;
+// corrupt-sst, truncate-sst and delete-checkpoint damage a stopped
+// service's store and start it again; all runs every case.
+//
 //	go build -o /tmp/waymark ./cmd/waymark
 //	go run ./bench/crashloop --bin /tmp/waymark --events 1000000 --kills 20
+//	go run ./bench/crashloop --bin /tmp/waymark --case idflood --events 1000000
+//	go run ./bench/crashloop --bin /tmp/waymark --case corrupt-sst,truncate-sst,delete-checkpoint --events 200000
 package main
 
 import (
@@ -68,7 +76,12 @@ type config struct {
 	keep    bool
 	timeout time.Duration
 	verify  bool
+	cases   string
 }
+
+// serveArgs are extra flags for every serve the program starts
+// (--serve-args); startServe reads them.
+var serveArgs []string
 
 func main() {
 	var c config
@@ -82,17 +95,79 @@ func main() {
 	flag.BoolVar(&c.keep, "keep", false, "keep the work folder")
 	flag.DurationVar(&c.timeout, "timeout", 20*time.Minute, "give up after this long")
 	flag.BoolVar(&c.verify, "verify-stream", true, "read the crash run's stream back and compare it with the events")
+	flag.StringVar(&c.cases, "case", "kills", "comma-separated `cases`: kills, idflood, corrupt-sst, truncate-sst, delete-checkpoint, or all")
+	extra := flag.String("serve-args", "", "extra `flags` for serve, space-separated (e.g. \"--flush-interval 1h\": on a slow host the 2 s interval\nflushes before --flush-events is reached, and idflood then never builds the largest flush)")
 	flag.Parse()
+	serveArgs = strings.Fields(*extra)
 	if c.events < 1 || c.kills < 0 {
 		fmt.Fprintln(os.Stderr, "crashloop: --events must be positive and --kills not negative")
 		os.Exit(2)
 	}
 	ctx, cancel := context.WithTimeout(context.Background(), c.timeout)
 	defer cancel()
-	if err := run(ctx, c); err != nil {
+	if err := runCases(ctx, c); err != nil {
 		fmt.Fprintln(os.Stderr, "crashloop: FAIL:", err)
 		os.Exit(1)
 	}
+}
+
+// runCases runs each case named in c.cases in its own subfolder of the
+// work folder, with one binary, and fails if any failed.
+func runCases(ctx context.Context, c config) (err error) {
+	names := strings.Split(c.cases, ",")
+	if c.cases == "all" {
+		names = caseNames
+	}
+	for _, n := range names {
+		if !slices.Contains(caseNames, n) {
+			return fmt.Errorf("unknown case %q (want %s or all)", n, strings.Join(caseNames, ", "))
+		}
+	}
+	if c.dir == "" {
+		if c.dir, err = os.MkdirTemp("", "crashloop-"); err != nil {
+			return err
+		}
+	}
+	if err := os.MkdirAll(c.dir, 0o755); err != nil {
+		return err
+	}
+	if !c.keep {
+		defer os.RemoveAll(c.dir)
+	}
+	if c.bin == "" {
+		c.bin = filepath.Join(c.dir, "waymark")
+		out, err := exec.CommandContext(ctx, "go", "build", "-o", c.bin, "./cmd/waymark").CombinedOutput()
+		if err != nil {
+			return fmt.Errorf("go build: %v: %s", err, out)
+		}
+	}
+	var failed []string
+	for _, n := range names {
+		cc := c
+		cc.dir, cc.keep = filepath.Join(c.dir, n), true // the parent is removed as a whole
+		if err := os.MkdirAll(cc.dir, 0o755); err != nil {
+			return err
+		}
+		var err error
+		switch n {
+		case "kills":
+			err = run(ctx, cc)
+		case "idflood":
+			err = floodRun(ctx, cc)
+		default:
+			err = damageRun(ctx, cc, n)
+		}
+		if err != nil {
+			fmt.Printf("case %s: FAIL: %v\n", n, err)
+			failed = append(failed, n)
+		} else {
+			fmt.Printf("case %s: PASS\n", n)
+		}
+	}
+	if len(failed) > 0 {
+		return fmt.Errorf("%d of %d cases failed: %s", len(failed), len(names), strings.Join(failed, ", "))
+	}
+	return nil
 }
 
 func run(ctx context.Context, c config) (err error) {
@@ -162,7 +237,7 @@ func run(ctx context.Context, c config) (err error) {
 	if crash.final.Items != clean.Items || crash.final.Sessions != clean.Sessions {
 		problems = append(problems, fmt.Sprintf("items/sessions %d/%d after crashes, %d/%d clean", crash.final.Items, crash.final.Sessions, clean.Items, clean.Sessions))
 	}
-	diffs := compare(crashAns, cleanAns)
+	diffs := compare(crashAns, cleanAns, "after crashes", "clean run    ")
 	problems = append(problems, diffs...)
 	nonEmpty := 0
 	for _, n := range names {
@@ -400,7 +475,9 @@ func answers(ctx context.Context, s *serve, names []string, probe [][]byte) (map
 	return out, nil
 }
 
-func compare(got, want map[string][]byte) []string {
+// compare lists the answers of want that got does not give byte for byte,
+// each with the two bodies under their labels.
+func compare(got, want map[string][]byte, gotLabel, wantLabel string) []string {
 	var diffs []string
 	keys := make([]string, 0, len(want))
 	for k := range want {
@@ -409,7 +486,7 @@ func compare(got, want map[string][]byte) []string {
 	slices.Sort(keys)
 	for _, k := range keys {
 		if !bytes.Equal(got[k], want[k]) {
-			diffs = append(diffs, fmt.Sprintf("%s:\n    after crashes %s\n    clean run     %s", k, trim(got[k]), trim(want[k])))
+			diffs = append(diffs, fmt.Sprintf("%s:\n    %s %s\n    %s %s", k, gotLabel, trim(got[k]), wantLabel, trim(want[k])))
 		}
 	}
 	return diffs
@@ -483,6 +560,7 @@ type stats struct {
 }
 
 type serve struct {
+	last stats // the last stats read by waitAppliedOrExit
 	cmd  *exec.Cmd
 	http string
 	nats string
@@ -528,6 +606,7 @@ func startServe(ctx context.Context, bin, dir string, ports []int, logPath strin
 		"--http", fmt.Sprintf("127.0.0.1:%d", ports[0]),
 		"--nats-listen", fmt.Sprintf("127.0.0.1:%d", ports[1]),
 		"--log-level", "warn")
+	s.cmd.Args = append(s.cmd.Args, serveArgs...)
 	s.cmd.Stdout, s.cmd.Stderr = lf, lf
 	if err := s.cmd.Start(); err != nil {
 		lf.Close()

@@ -19,7 +19,7 @@ func sharedData(t testing.TB, rel string) string {
 	t.Helper()
 	p := filepath.Join("..", "..", "..", "shared", "data", rel)
 	if _, err := os.Stat(p); err != nil {
-		t.Skipf("open dataset %s not found (../shared/data is absent): %v", rel, err)
+		t.Skipf("needs the open dataset %s (../shared/data beside the project): %v", p, err)
 	}
 	return p
 }
