@@ -79,6 +79,9 @@ type Blend struct {
 	cost []atomic.Int64
 	// scratch recycles *blendScratch across queries.
 	scratch sync.Pool
+	// learn chooses the weights of a learned blend (blendlearn.go); nil
+	// for fixed weights.
+	learn *BlendLearner
 }
 
 // DefaultContentBackoff is n0 of the content back-off: the decayed click
@@ -123,6 +126,9 @@ func (bu Budget) allows(expect time.Duration) bool {
 
 // Name lists the blend's parts and weights.
 func (b *Blend) Name() string {
+	if b.learn != nil {
+		return learnedName // the weights change with the stream: see Stats
+	}
 	parts := make([]string, 0, len(b.signals)+1)
 	for _, s := range b.signals {
 		parts = append(parts, fmt.Sprintf("%s=%g", s.Name, s.Weight))
@@ -200,11 +206,19 @@ func (b *Blend) getScratch() *blendScratch {
 // them); callers rank with b.keep. It reports whether any signal other than
 // popularity had candidates, and the signals the budget skipped.
 func (b *Blend) blend(q *Query, popN int, sc *blendScratch, skip func(ItemID) bool, bu Budget) (collab bool, skipped []string) {
+	w, popW := b.weightsFor(skip)
 	for si := range b.signals {
 		s := &b.signals[si]
 		part := &sc.parts[si]
 		part.Reset()
 		sc.norm[si] = 0
+		wt := s.Weight
+		if w != nil {
+			// A learned blend asks only the signals its mixture weighs.
+			if wt = w[si]; wt == 0 {
+				continue
+			}
+		}
 		if !bu.allows(time.Duration(b.cost[si].Load())) {
 			skipped = append(skipped, s.Name)
 			continue
@@ -222,12 +236,12 @@ func (b *Blend) blend(q *Query, popN int, sc *blendScratch, skip func(ItemID) bo
 		// The arithmetic is Score's, term for term, so the two agree.
 		if cf, ok := b.contentBackoff(s, q); ok {
 			for _, e := range part.Entries() {
-				sc.out.Add(e.Item, s.Weight*cf(e.Item)*(e.Score/mx))
+				sc.out.Add(e.Item, wt*cf(e.Item)*(e.Score/mx))
 			}
 			continue
 		}
 		for _, e := range part.Entries() {
-			sc.out.Add(e.Item, s.Weight*(e.Score/mx))
+			sc.out.Add(e.Item, wt*(e.Score/mx))
 		}
 	}
 	sc.popMx = 0
@@ -240,7 +254,7 @@ func (b *Blend) blend(q *Query, popN int, sc *blendScratch, skip func(ItemID) bo
 	// Popularity as a feature of every candidate the others found...
 	ents := sc.out.Entries()
 	for i := range ents {
-		ents[i].Score += b.popW * (b.pop.Count(ents[i].Item) / mx)
+		ents[i].Score += popW * (b.pop.Count(ents[i].Item) / mx)
 	}
 	// ...and as a source of candidates to fill the list, counting only
 	// items that can be shown.
@@ -254,7 +268,7 @@ func (b *Blend) blend(q *Query, popN int, sc *blendScratch, skip func(ItemID) bo
 		}
 		filled++
 		if _, ok := sc.out.Lookup(id); !ok {
-			sc.out.Set(id, b.popW*(b.pop.Count(id)/mx))
+			sc.out.Set(id, popW*(b.pop.Count(id)/mx))
 		}
 	}
 	return collab, skipped
@@ -397,8 +411,13 @@ func (b *Blend) Score(q *Query, items []ItemID) []ScoreRow {
 	defer b.scratch.Put(sc)
 	sc.raw = slices.Grow(sc.raw[:0], len(items))[:len(items)]
 	raw := sc.raw
+	w, popW := b.weightsFor(func(ItemID) bool { return false })
 	for si := range b.signals {
 		s := &b.signals[si]
+		wt := s.Weight
+		if w != nil {
+			wt = w[si]
+		}
 		part := &sc.parts[si]
 		part.Reset()
 		s.Model.Candidates(q, part)
@@ -418,9 +437,9 @@ func (b *Blend) Score(q *Query, items []ItemID) []ScoreRow {
 			f := v / mx
 			rows[i].Features[si] = f
 			if content {
-				rows[i].Score += s.Weight * cf(items[i]) * f
+				rows[i].Score += wt * cf(items[i]) * f
 			} else {
-				rows[i].Score += s.Weight * f
+				rows[i].Score += wt * f
 			}
 		}
 	}
@@ -429,7 +448,7 @@ func (b *Blend) Score(q *Query, items []ItemID) []ScoreRow {
 		for i, id := range items {
 			f := b.pop.Count(id) / mx
 			rows[i].Features[nf-1] = f
-			rows[i].Score += b.popW * f
+			rows[i].Score += popW * f
 		}
 	}
 	return rows

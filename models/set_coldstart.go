@@ -297,5 +297,11 @@ func buildColdBlend(s *Set, p *params, base builder) (Model, error) {
 		}
 	}
 	b.setColdStart(s.Catalog(), n0)
+	if len(rest.Params) == 0 {
+		// The default blend learns its weights (blendlearn.go).
+		if err := s.learnBlend(b, p.spec.String()); err != nil {
+			return nil, err
+		}
+	}
 	return b, nil
 }

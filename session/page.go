@@ -223,6 +223,7 @@ code,.id{font-family:ui-monospace,monospace;word-break:break-all}.cols{display:g
 <div class="card"><span>sessions tracked</span><b id="sessions">{{.Stats.SessionsActive}}</b></div>
 <div class="card"><span>store size</span><b id="store-size" title="{{.Stats.StoreBytes}} bytes">{{.StoreSize}}</b></div>
 <div class="card"><span>event-time watermark</span><b id="watermark">{{if .Stats.Watermark}}{{.Stats.Watermark}}{{else}}none yet{{end}}</b></div>
+{{with .Stats.Blend}}<div class="card"><span>blend mixture (learned, {{.Evaluated}} clicks scored)</span><b id="blend-mixture">{{(index .Rules 0).Chosen}}</b></div>{{end}}
 </div>
 <p>answers with <code id="blend">{{.Blend}}</code>; models learning: <span id="models">{{range $i, $m := .Stats.Models}}{{if $i}}, {{end}}<code>{{$m}}</code>{{end}}</span></p>
 
