@@ -14,7 +14,9 @@ import (
 // cold targets. The session-kNN family is left out: next to content it
 // added nothing there (vsknn=1: 0.718 overall, 0.68 cold; vstan=0.5:
 // 0.725, 0.81) while its index costs memory and query time;
-// blend(...,vstan=0.5) adds it where replay shows a gain.
+// blend(...,vstan=0.5) adds it where replay shows a gain. The learned
+// default adds vsknn and vstan to its pool of mixtures (blendlearn.go) and
+// asks them only when the chosen mixture weighs them.
 func defaultColdSignals() []struct {
 	name   string
 	weight float64
