@@ -2,12 +2,15 @@ package session
 
 import (
 	"context"
+	"encoding/json"
 	"reflect"
+	"strings"
 	"testing"
 
 	"waymark/bench/synth"
 	"waymark/models"
 	"waymark/store"
+	"waymark/stream"
 )
 
 // TestLearnedBlendRestartsExactly learns the first half of a stream in a
@@ -85,5 +88,58 @@ func TestLearnedBlendRestartsExactly(t *testing.T) {
 		if !reflect.DeepEqual(a1, a2) {
 			t.Fatalf("session %s: restarted answers %v, uninterrupted %v", key, a1, a2)
 		}
+	}
+}
+
+// TestStatsShowLearnedBlend checks that /v1/stats' source, Engine.Stats,
+// reports the default blend's choice and pool, and that a blend with
+// fixed weights reports none. Events: bench/synth's invented shop.
+func TestStatsShowLearnedBlend(t *testing.T) {
+	ctx := context.Background()
+	evs := synth.Generate(synth.Options{Events: 3000, Items: 300, Concurrent: 20})
+	for _, c := range []struct {
+		blend   string
+		learned bool
+	}{{models.DefaultBlendSpec, true}, {"blend(markov=1,sr=1)", false}} {
+		t.Run(c.blend, func(t *testing.T) {
+			st, err := store.Open(ctx, t.TempDir(), store.DefaultOptions())
+			if err != nil {
+				t.Fatal(err)
+			}
+			defer st.Close()
+			o := DefaultEngineOptions()
+			o.Blend = c.blend
+			e, err := NewEngine(ctx, st, nil, o)
+			if err != nil {
+				t.Fatal(err)
+			}
+			var msgs []stream.Msg
+			for i := range evs {
+				msgs = append(msgs, stream.Msg{Seq: uint64(i + 1), Subject: "waymark.events", Data: evs[i].AppendJSON(nil)})
+			}
+			if err := e.Handle(ctx, msgs); err != nil {
+				t.Fatal(err)
+			}
+			s := e.Stats()
+			if !c.learned {
+				if s.Blend != nil {
+					t.Fatalf("fixed blend reports learned state %+v", s.Blend)
+				}
+				return
+			}
+			if s.Blend == nil || len(s.Blend.Rules) != 2 || s.Blend.Rules[0].Chosen == "" || len(s.Blend.Pool) == 0 || s.Blend.Evaluated == 0 {
+				t.Fatalf("learned blend stats %+v", s.Blend)
+			}
+			if w := s.Blend.Rules[0].Weights; len(w) == 0 {
+				t.Fatalf("no weights in %+v", s.Blend.Rules[0])
+			}
+			b, err := json.Marshal(s)
+			if err != nil {
+				t.Fatal(err)
+			}
+			if !strings.Contains(string(b), `"blend":{"every":8`) {
+				t.Fatalf("stats JSON lacks the blend: %s", b)
+			}
+		})
 	}
 }
