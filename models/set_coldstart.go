@@ -191,6 +191,9 @@ func buildKNN(s *Set, p *params, v KNNVariant) (Model, error) {
 		o.INH = p.positive("lambda_inh", o.INH)
 	}
 	io := DefaultSessionIndexOptions()
+	if s.opts.KNNSessions > 0 {
+		io.MaxSessions = s.opts.KNNSessions
+	}
 	io.MaxSessions = p.Int("sessions", io.MaxSessions, 1)
 	io.MaxLen = p.Int("len", io.MaxLen, 1)
 	io.Postings = p.Int("postings", io.Postings, 1)
