@@ -81,6 +81,9 @@ type Blend struct {
 	cost []atomic.Int64
 	// scratch recycles *blendScratch across queries.
 	scratch sync.Pool
+	// learn chooses the weights of a learned blend (blendlearn.go); nil
+	// for fixed weights.
+	learn *BlendLearner
 }
 
 // DefaultContentBackoff is n0 of the content back-off: the decayed click
@@ -101,7 +104,7 @@ func (b *Blend) available(id ItemID) bool { return b.cat == nil || b.cat.Availab
 // feature of the candidates other signals found: it orders candidates with
 // similar evidence. Whatever its size, it never lifts an item no other
 // signal proposed (a popularity fill) above one they did: fills rank below
-// every candidate with evidence (see [Blend.fillScore]). A weight of 0
+// every candidate with evidence (see fillScore). A weight of 0
 // turns fills off.
 const DefaultPopWeight = 0.1
 
@@ -128,6 +131,9 @@ func (bu Budget) allows(expect time.Duration) bool {
 
 // Name lists the blend's parts and weights.
 func (b *Blend) Name() string {
+	if b.learn != nil {
+		return learnedName // the weights change with the stream: see Stats
+	}
 	parts := make([]string, 0, len(b.signals)+1)
 	for _, s := range b.signals {
 		parts = append(parts, fmt.Sprintf("%s=%g", s.Name, s.Weight))
@@ -208,7 +214,8 @@ func (b *Blend) getScratch() *blendScratch {
 // them); callers rank with b.keep. It reports whether any signal other than
 // popularity had candidates, and the signals the budget skipped.
 func (b *Blend) blend(q *Query, popN int, sc *blendScratch, skip func(ItemID) bool, bu Budget) (collab bool, skipped []string) {
-	collab, skipped = b.evidence(q, sc, bu)
+	w, popW := b.weightsFor(skip)
+	collab, skipped = b.evidence(q, sc, bu, w, popW)
 	if sc.popMx == 0 {
 		return collab, skipped
 	}
@@ -224,7 +231,7 @@ func (b *Blend) blend(q *Query, popN int, sc *blendScratch, skip func(ItemID) bo
 		}
 		filled++
 		if _, ok := sc.out.Lookup(id); !ok {
-			sc.out.Set(id, b.fillScore(sc, b.pop.Count(id)/sc.popMx))
+			sc.out.Set(id, fillScore(sc.floor, popW, b.pop.Count(id)/sc.popMx))
 		}
 	}
 	return collab, skipped
@@ -235,28 +242,36 @@ func (b *Blend) blend(q *Query, popN int, sc *blendScratch, skip func(ItemID) bo
 // f, so every fill ranks below every candidate with evidence and fills
 // keep their popularity order; without any, popularity's own weighted
 // feature. A popularity weight of 0 gives 0: no fills.
-func (b *Blend) fillScore(sc *blendScratch, f float64) float64 {
-	if b.popW <= 0 {
+func fillScore(floor, popW, f float64) float64 {
+	if popW <= 0 {
 		return 0
 	}
-	if sc.floor > 0 {
-		return sc.floor * f / 2
+	if floor > 0 {
+		return floor * f / 2
 	}
-	return b.popW * f
+	return popW * f
 }
 
 // evidence fills sc.out with the blended scores of every signal's
 // candidates (popularity included as their feature), sc.parts and sc.norm
-// with what features need, sc.popMx and sc.floor. It reports whether any
-// signal other than popularity had candidates, and the signals the budget
-// skipped.
-func (b *Blend) evidence(q *Query, sc *blendScratch, bu Budget) (collab bool, skipped []string) {
+// with what features need, sc.popMx and sc.floor. w and popW are the
+// weights (weightsFor): w nil means each signal's own. It reports whether
+// any signal other than popularity had candidates, and the signals the
+// budget skipped.
+func (b *Blend) evidence(q *Query, sc *blendScratch, bu Budget, w []float64, popW float64) (collab bool, skipped []string) {
 	sc.floor = 0
 	for si := range b.signals {
 		s := &b.signals[si]
 		part := &sc.parts[si]
 		part.Reset()
 		sc.norm[si] = 0
+		wt := s.Weight
+		if w != nil {
+			// A learned blend asks only the signals its mixture weighs.
+			if wt = w[si]; wt == 0 {
+				continue
+			}
+		}
 		if !bu.allows(time.Duration(b.cost[si].Load())) {
 			skipped = append(skipped, s.Name)
 			continue
@@ -274,12 +289,12 @@ func (b *Blend) evidence(q *Query, sc *blendScratch, bu Budget) (collab bool, sk
 		// The arithmetic is Score's, term for term, so the two agree.
 		if cf, ok := b.contentBackoff(s, q); ok {
 			for _, e := range part.Entries() {
-				sc.out.Add(e.Item, s.Weight*cf(e.Item)*(e.Score/mx))
+				sc.out.Add(e.Item, wt*cf(e.Item)*(e.Score/mx))
 			}
 			continue
 		}
 		for _, e := range part.Entries() {
-			sc.out.Add(e.Item, s.Weight*(e.Score/mx))
+			sc.out.Add(e.Item, wt*(e.Score/mx))
 		}
 	}
 	sc.popMx = 0
@@ -290,7 +305,7 @@ func (b *Blend) evidence(q *Query, sc *blendScratch, bu Budget) (collab bool, sk
 	ents := sc.out.Entries()
 	for i := range ents {
 		if sc.popMx > 0 {
-			ents[i].Score += b.popW * (b.pop.Count(ents[i].Item) / sc.popMx)
+			ents[i].Score += popW * (b.pop.Count(ents[i].Item) / sc.popMx)
 		}
 		if v := ents[i].Score; v > 0 && (sc.floor == 0 || v < sc.floor) {
 			sc.floor = v
@@ -438,10 +453,15 @@ func (b *Blend) Score(q *Query, items []ItemID) []ScoreRow {
 	defer b.scratch.Put(sc)
 	sc.raw = slices.Grow(sc.raw[:0], len(items))[:len(items)]
 	raw := sc.raw
-	b.evidence(q, sc, Budget{}) // each signal's candidates, and the fills' floor
+	w, popW := b.weightsFor(func(ItemID) bool { return false })
+	b.evidence(q, sc, Budget{}, w, popW) // each signal's candidates, and the fills' floor
 	evidenced := make([]bool, len(items))
 	for si := range b.signals {
 		s := &b.signals[si]
+		wt := s.Weight
+		if w != nil {
+			wt = w[si]
+		}
 		part := &sc.parts[si]
 		s.Model.ScoreItems(q, items, raw)
 		// A signal may score items it would not propose; keep features
@@ -458,11 +478,11 @@ func (b *Blend) Score(q *Query, items []ItemID) []ScoreRow {
 		for i, v := range raw {
 			f := v / mx
 			rows[i].Features[si] = f
-			evidenced[i] = evidenced[i] || f > 0
+			evidenced[i] = evidenced[i] || (f > 0 && wt > 0)
 			if content {
-				rows[i].Score += s.Weight * cf(items[i]) * f
+				rows[i].Score += wt * cf(items[i]) * f
 			} else {
-				rows[i].Score += s.Weight * f
+				rows[i].Score += wt * f
 			}
 		}
 	}
@@ -472,9 +492,9 @@ func (b *Blend) Score(q *Query, items []ItemID) []ScoreRow {
 			rows[i].Features[nf-1] = f
 			switch {
 			case evidenced[i]:
-				rows[i].Score += b.popW * f
+				rows[i].Score += popW * f
 			case f > 0:
-				rows[i].Score = b.fillScore(sc, f)
+				rows[i].Score = fillScore(sc.floor, popW, f)
 			}
 		}
 	}

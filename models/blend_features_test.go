@@ -13,7 +13,8 @@ import (
 func TestBlendFeaturesAreNormalisedSignals(t *testing.T) {
 	w := newCSWorld(3, 400)
 	specs := []string{
-		"blend",                               // markov, sr, iknn: appended tables
+		"blend",                               // learned: the chosen mixture's signals
+		"blend(markov=1,sr=1,iknn=1)",         // markov, sr, iknn: appended tables
 		"iknn(span=3)",                        // voters after the first add onto appended entries
 		"blend(content=1,markov=1,backoff=0)", // content adds through the index
 	}
@@ -59,6 +60,11 @@ func TestBlendFeaturesAreNormalisedSignals(t *testing.T) {
 							mx = max(mx, v)
 						}
 						mx = normaliser(sig.Model, mx)
+						// A learned blend asks only the signals its
+						// chosen mixture weighs; the others report 0.
+						if w, _ := b.weightsFor(nil); w != nil && w[si] == 0 {
+							mx = 0
+						}
 						for i, it := range res.Items {
 							want := 0.0
 							if mx > 0 {

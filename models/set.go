@@ -12,6 +12,11 @@ type SetOptions struct {
 	CapPerItem int
 	// SRWindow is Sequential Rules' default window m (default 5).
 	SRWindow int
+	// KNNSessions caps the sessions the session-kNN index keeps unless a
+	// spec says sessions= (0: the index's default, 1,000,000). The
+	// pipeline sets it to the tracker's cap, so one flag bounds both
+	// copies of the sessions.
+	KNNSessions int
 }
 
 // DefaultSetOptions returns the shared defaults.

@@ -14,7 +14,9 @@ import (
 // cold targets. The session-kNN family is left out: next to content it
 // added nothing there (vsknn=1: 0.718 overall, 0.68 cold; vstan=0.5:
 // 0.725, 0.81) while its index costs memory and query time;
-// blend(...,vstan=0.5) adds it where replay shows a gain.
+// blend(...,vstan=0.5) adds it where replay shows a gain. The learned
+// default adds vsknn and vstan to its pool of mixtures (blendlearn.go) and
+// asks them only when the chosen mixture weighs them.
 func defaultColdSignals() []struct {
 	name   string
 	weight float64
@@ -189,6 +191,9 @@ func buildKNN(s *Set, p *params, v KNNVariant) (Model, error) {
 		o.INH = p.positive("lambda_inh", o.INH)
 	}
 	io := DefaultSessionIndexOptions()
+	if s.opts.KNNSessions > 0 {
+		io.MaxSessions = s.opts.KNNSessions
+	}
 	io.MaxSessions = p.Int("sessions", io.MaxSessions, 1)
 	io.MaxLen = p.Int("len", io.MaxLen, 1)
 	io.Postings = p.Int("postings", io.Postings, 1)
@@ -301,5 +306,11 @@ func buildColdBlend(s *Set, p *params, base builder) (Model, error) {
 		}
 	}
 	b.setColdStart(s.Catalog(), n0)
+	if len(rest.Params) == 0 {
+		// The default blend learns its weights (blendlearn.go).
+		if err := s.learnBlend(b, p.spec.String()); err != nil {
+			return nil, err
+		}
+	}
 	return b, nil
 }

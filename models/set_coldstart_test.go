@@ -21,7 +21,7 @@ func TestColdStartSpecs(t *testing.T) {
 		{"fresh", "fresh"},
 		{"fresh(window=24,pool=50,content=0)", "fresh(content=0,pool=50,window=24)"},
 		{"trending(short=1,long=48)", "trending(long=48,short=1)"},
-		{"blend", "blend(markov=1,sr=1,iknn=1,content=1,prior=1,pop=0.1)"},
+		{"blend", "blend(learned=1)"},
 		{"blend(vstan=0.5,sr=1,backoff=5)", "blend(sr=1,vstan=0.5,pop=0.1)"},
 	}
 	for _, g := range good {

@@ -512,6 +512,9 @@ type Stats struct {
 	Watermark      string   `json:"event_time_watermark,omitempty"`
 	StoreBytes     int64    `json:"store_bytes"`
 	Models         []string `json:"models"`
+	// Blend is the learned blend's state (chosen mixture, weights, the
+	// pool's recent scores); absent for a blend with fixed weights.
+	Blend *models.LearnedStats `json:"blend,omitempty"`
 }
 
 // Stats returns the engine's counters.
@@ -521,6 +524,11 @@ func (e *Engine) Stats() Stats {
 	pc := e.p.Checkpoint()
 	wm := pc.Watermark
 	keys := append([]string(nil), e.p.Set.Keys()...)
+	var learned *models.LearnedStats
+	if l := e.blend.Learner(); l != nil {
+		ls := l.Stats()
+		learned = &ls
+	}
 	e.mu.RUnlock()
 	s := Stats{
 		EventsApplied:  e.applied.Load(),
@@ -534,6 +542,7 @@ func (e *Engine) Stats() Stats {
 		SessionsActive: e.p.Tracker.Len(),
 		StoreBytes:     e.st.Size(),
 		Models:         keys,
+		Blend:          learned,
 	}
 	if wm > 0 {
 		s.Watermark = time.UnixMilli(wm).UTC().Format(time.RFC3339Nano)

@@ -309,6 +309,7 @@ tr.explore td{background:#fffaf0}
 <div class="card"><span>sessions tracked</span><b title="{{.Stats.SessionsActive}}" id="sessions">{{.Stats.SessionsActive}}</b></div>
 <div class="card"><span>store size on disk</span><b title="{{.Stats.StoreBytes}} bytes" id="store-size">{{.StoreSize}}</b></div>
 <div class="card wide"><span>event-time watermark</span><b title="{{.Stats.Watermark}}" id="watermark">{{if .Stats.Watermark}}{{.Stats.Watermark}}{{else}}none yet{{end}}</b></div>
+{{with .Stats.Blend}}<div class="card wide"><span>blend mixture (learned, {{.Evaluated}} clicks scored)</span><b title="{{(index .Rules 0).Chosen}}" id="blend-mixture">{{(index .Rules 0).Chosen}}</b></div>{{end}}
 </div>
 <p>answers with <code id="blend">{{.Blend}}</code>; models learning: <span id="models">{{range $i, $m := .Stats.Models}}{{if $i}}, {{end}}<code>{{$m}}</code>{{end}}</span></p>
 

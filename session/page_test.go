@@ -163,6 +163,9 @@ func TestPageHandler(t *testing.T) {
 						t.Errorf("blend shown as %q, lacks %q", blend, part)
 					}
 				}
+				if got := statValue(page, "blend-mixture"); got != "" {
+					t.Errorf("a blend with fixed weights shows a learned mixture %q", got)
+				}
 				if got := statValue(page, "store-size"); !strings.HasSuffix(got, "B") {
 					t.Errorf("store size %q is not a byte size", got)
 				}

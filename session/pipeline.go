@@ -101,6 +101,11 @@ func NewPipeline(opts PipelineOptions) (*Pipeline, error) {
 	if err != nil {
 		return nil, err
 	}
+	if opts.Set.KNNSessions == 0 {
+		// The session-kNN index (in the learned default blend) keeps
+		// sessions too: --max-sessions bounds both.
+		opts.Set.KNNSessions = opts.Tracker.MaxSessions
+	}
 	p := &Pipeline{
 		opts:    opts,
 		Dict:    store.NewDict(itemPrefix),

@@ -84,7 +84,7 @@ func newServeFlags(name string, stderr io.Writer) *serveFlags {
 	fs.DurationVar(&f.halfLife, "half-life", models.DefaultHalfLife, "decay half-life of every count, in event time")
 	fs.IntVar(&f.window, "window", d.Engine.Pipeline.Tracker.Window, "recent clicks kept per session")
 	fs.DurationVar(&f.timeout, "session-timeout", d.Engine.Pipeline.Tracker.Timeout, "event-time inactivity that ends a session")
-	fs.IntVar(&f.maxSess, "max-sessions", d.Engine.Pipeline.Tracker.MaxSessions, "sessions tracked at once (least recently active evicted)")
+	fs.IntVar(&f.maxSess, "max-sessions", d.Engine.Pipeline.Tracker.MaxSessions, "sessions tracked at once (least recently active evicted); also caps the session-kNN index unless a spec says sessions=")
 	fs.IntVar(&f.maxItems, "max-items", d.Engine.Pipeline.MaxItems, "item dictionary cap; clicks on new items beyond it are counted as overflow and not learned")
 	fs.IntVar(&f.capItem, "neighbors-per-item", d.Engine.Pipeline.Set.CapPerItem, "neighbour list cap per item and model")
 	fs.IntVar(&f.srWindow, "sr-window", d.Engine.Pipeline.Set.SRWindow, "Sequential Rules window m")
