@@ -22,6 +22,10 @@ type Options struct {
 	InMemory   bool
 	Logger     *slog.Logger
 	Registerer prometheus.Registerer
+
+	// hook, when set (tests only), is called after each transaction of a
+	// multi-transaction flush with the stage it finished.
+	hook func(stage string)
 }
 
 // DefaultOptions returns the options serve uses.
@@ -47,6 +51,13 @@ type Store struct {
 	db      *badger.DB
 	log     *slog.Logger
 	metrics *metrics
+	hookFn  func(stage string)
+}
+
+func (s *Store) hook(stage string) {
+	if s.hookFn != nil {
+		s.hookFn(stage)
+	}
 }
 
 // Open opens or creates the store in dir.
@@ -67,7 +78,11 @@ func Open(ctx context.Context, dir string, opts Options) (*Store, error) {
 	if err != nil {
 		return nil, fmt.Errorf("open store %s: %w", dir, err)
 	}
-	s := &Store{db: db, log: opts.Logger, metrics: newMetrics(opts.Registerer, db)}
+	s := &Store{db: db, log: opts.Logger, metrics: newMetrics(opts.Registerer, db), hookFn: opts.hook}
+	if err := s.recoverJournal(ctx); err != nil {
+		db.Close()
+		return nil, fmt.Errorf("open store %s: %w", dir, err)
+	}
 	return s, nil
 }
 
@@ -233,8 +248,27 @@ func (b *Batch) Len() int { return len(b.ops) }
 // Bytes returns the key and value bytes recorded.
 func (b *Batch) Bytes() int { return b.bytes }
 
-// CommitBatch writes b in one transaction.
+// entryOverhead approximates what Badger adds to each write when it sizes
+// a transaction (version, meta, header): a batch is journaled up front when
+// its own estimate already passes a limit, which spares building a
+// transaction only to have it refused.
+const entryOverhead = 32
+
+// CommitBatch writes b atomically: in one transaction when it fits
+// Badger's limits, else through the journal (journal.go), so no flush is
+// ever too large to commit.
 func (s *Store) CommitBatch(b *Batch) error {
+	if int64(b.Len()+1) >= s.db.MaxBatchCount() || int64(b.Bytes()+entryOverhead*b.Len()) >= s.db.MaxBatchSize() {
+		return s.commitJournaled(b)
+	}
+	err := s.commitOne(b)
+	if errors.Is(err, ErrTooLarge) {
+		return s.commitJournaled(b)
+	}
+	return err
+}
+
+func (s *Store) commitOne(b *Batch) error {
 	return s.Commit(func(tx *Txn) error {
 		for _, op := range b.ops {
 			var err error
