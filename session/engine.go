@@ -169,6 +169,9 @@ type Engine struct {
 	lastCommit chan struct{}    // closed when the newest commit handed off is done
 	lastFlush  time.Time
 
+	// faults are the reasons the state takes no writes now (faults.go).
+	faults *faults
+
 	// Readable from any goroutine.
 	applied    atomic.Uint64
 	rejected   atomic.Uint64
@@ -215,11 +218,20 @@ func NewEngine(ctx context.Context, st *store.Store, dlq DeadLetterer, opts Engi
 	e.cp = p.Checkpoint()
 	e.publishCounters()
 	e.met = newMetrics(opts.Registerer, e)
+	e.faults = newFaults(opts.Registerer)
 	e.loaded.Store(true)
 	e.log.Info("state loaded", "seq", e.cp.Seq, "events_applied", e.cp.Applied,
 		"items", p.Dict.Len(), "sessions", p.Tracker.Len(), "took", time.Since(start).Round(time.Millisecond))
 	return e, nil
 }
+
+// StreamID returns the id of the stream the state was learned from ("" when
+// not recorded yet).
+func (e *Engine) StreamID() string { return e.cp.Stream }
+
+// SetStreamID records the id of the stream the state learns from; the next
+// flush stores it with the checkpoint. Call it before consuming starts.
+func (e *Engine) SetStreamID(id string) { e.cp.Stream = id }
 
 // ResumeSeq is the first stream sequence the consumer must deliver.
 func (e *Engine) ResumeSeq() uint64 { return e.lastSeq.Load() + 1 }

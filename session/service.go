@@ -48,7 +48,13 @@ type ServiceOptions struct {
 	// an empty data folder before starting, so a new replica replays only
 	// what came after the snapshot.
 	Bootstrap bool
-	Logger    *slog.Logger
+	// RebuildFromStream discards learned state that cannot continue from
+	// the events stream (checkpoint ahead of it, a gap, a re-created
+	// stream, or a store that reports itself corrupt) and relearns the
+	// stream as it is now. State that is consistent with the stream is
+	// kept.
+	RebuildFromStream bool
+	Logger            *slog.Logger
 }
 
 // Version is the service version reported to NATS service discovery.
@@ -93,6 +99,8 @@ type Service struct {
 	wg       sync.WaitGroup
 	stop     context.CancelFunc
 	errc     chan error
+	// streamID is the events stream's id (creation time) at start.
+	streamID string
 }
 
 // Open starts every part. On error, whatever started is stopped again.
@@ -157,7 +165,7 @@ func Open(ctx context.Context, opts ServiceOptions) (_ *Service, err error) {
 	}
 	so := opts.Store
 	so.Logger, so.Registerer = opts.Logger, s.reg
-	if s.st, err = store.Open(ctx, filepath.Join(opts.DataDir, "store"), so); err != nil {
+	if s.st, err = s.openStore(ctx, so); err != nil {
 		return nil, err
 	}
 	bo := opts.Bus
@@ -181,6 +189,10 @@ func Open(ctx context.Context, opts ServiceOptions) (_ *Service, err error) {
 			return nil, err
 		}
 	}
+	fault, why, err := s.checkStart(ctx)
+	if err != nil {
+		return nil, err
+	}
 	eo := opts.Engine
 	eo.Logger, eo.Registerer = opts.Logger, s.reg
 	eo.CatalogSubject = s.bus.Options().CatalogSubject
@@ -188,25 +200,21 @@ func Open(ctx context.Context, opts ServiceOptions) (_ *Service, err error) {
 	if s.eng, err = NewEngine(ctx, s.st, s.bus, eo); err != nil {
 		return nil, err
 	}
+	if s.eng.StreamID() == "" {
+		s.eng.SetStreamID(s.streamID)
+	}
 	replica, err := s.st.ReplicaID(newReplicaID)
 	if err != nil {
 		return nil, err
 	}
 	runCtx, cancel := context.WithCancel(context.Background())
 	s.stop = cancel
-	s.cons, err = s.bus.Consume(runCtx, stream.ConsumerOptions{
-		Name:          "waymark-" + replica,
-		StartSeq:      s.eng.ResumeSeq(),
-		Batch:         opts.Batch,
-		MaxAckPending: opts.MaxAckPending,
-		// A fetch returns when its batch is full or after MaxWait; below
-		// Batch/MaxWait events a second, that wait is the delay between
-		// an event's publication and its use in answers. Under load the
-		// batches fill first and the wait does not matter.
-		MaxWait: freshWait,
-	}, s.eng.Handle)
-	if err != nil {
-		return nil, fmt.Errorf("start consumer: %w", err)
+	if fault != "" {
+		// Nothing is consumed: the HTTP API still answers queries from
+		// the state as loaded, and refuses readiness and writes.
+		s.eng.SetFault(fault, why)
+	} else if err := s.startConsumer(runCtx, replica); err != nil {
+		return nil, err
 	}
 	s.wg.Add(1)
 	go s.pollStream(runCtx)
@@ -231,6 +239,27 @@ func Open(ctx context.Context, opts ServiceOptions) (_ *Service, err error) {
 			s.errc <- fmt.Errorf("http: %w", err)
 		}
 	}()
+	s.log.Info("serving", "http", s.httpAddr, "nats", bo.URL, "consumer", "waymark-"+replica, "resume_seq", s.eng.ResumeSeq())
+	return s, nil
+}
+
+// startConsumer starts consuming after the engine's checkpoint.
+func (s *Service) startConsumer(runCtx context.Context, replica string) error {
+	var err error
+	s.cons, err = s.bus.Consume(runCtx, stream.ConsumerOptions{
+		Name:          "waymark-" + replica,
+		StartSeq:      s.eng.ResumeSeq(),
+		Batch:         s.opts.Batch,
+		MaxAckPending: s.opts.MaxAckPending,
+		// A fetch returns when its batch is full or after MaxWait; below
+		// Batch/MaxWait events a second, that wait is the delay between
+		// an event's publication and its use in answers. Under load the
+		// batches fill first and the wait does not matter.
+		MaxWait: freshWait,
+	}, s.eng.Handle)
+	if err != nil {
+		return fmt.Errorf("start consumer: %w", err)
+	}
 	s.wg.Add(1)
 	go func() {
 		defer s.wg.Done()
@@ -242,8 +271,7 @@ func Open(ctx context.Context, opts ServiceOptions) (_ *Service, err error) {
 		case <-runCtx.Done():
 		}
 	}()
-	s.log.Info("serving", "http", s.httpAddr, "nats", bo.URL, "consumer", "waymark-"+replica, "resume_seq", s.eng.ResumeSeq())
-	return s, nil
+	return nil
 }
 
 // bootstrap restores the newest snapshot into an empty store.
@@ -291,15 +319,26 @@ func newReplicaID() string {
 	return hex.EncodeToString(b[:])
 }
 
-// pollStream keeps the stream's last sequence fresh for lag and readiness.
+// pollStream keeps the stream's last sequence fresh for lag and readiness,
+// and stops consuming when the stream stops matching the state (it was
+// re-created, or dropped messages not yet applied).
 func (s *Service) pollStream(ctx context.Context) {
 	defer s.wg.Done()
 	t := time.NewTicker(250 * time.Millisecond)
 	defer t.Stop()
+	stopped := false
 	for {
+		// The applied sequence is read before the stream: the stream can
+		// only have grown since.
+		seq := s.eng.lastSeq.Load()
 		c, cancel := context.WithTimeout(ctx, 2*time.Second)
-		if last, err := s.bus.LastSequence(c); err == nil {
-			s.eng.SetStreamLast(last)
+		if st, err := s.streamState(c); err == nil {
+			s.eng.SetStreamLast(st.last)
+			if reason, msg := checkStream(seq, s.streamID, st); reason != "" && s.cons != nil && !stopped {
+				s.eng.SetFault(reason, msg)
+				s.cons.Stop()
+				stopped = true
+			}
 		}
 		cancel()
 		select {
@@ -313,6 +352,12 @@ func (s *Service) pollStream(ctx context.Context) {
 func (s *Service) ready() (bool, string) {
 	if !s.eng.Loaded() {
 		return false, "state not loaded"
+	}
+	if fs := s.eng.Faults(); len(fs) > 0 {
+		return false, faultText(fs)
+	}
+	if s.cons == nil {
+		return false, "consumer not started"
 	}
 	select {
 	case <-s.cons.Closed():

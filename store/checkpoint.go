@@ -29,6 +29,9 @@ type Checkpoint struct {
 	Touches uint64 `json:"touches"`
 	// Config fingerprints the model configuration the counts were made with.
 	Config string `json:"config,omitempty"`
+	// Stream identifies the events stream the state was learned from (its
+	// creation time), so a re-created stream is told from the old one.
+	Stream string `json:"stream,omitempty"`
 }
 
 var checkpointKey = []byte("x/checkpoint")

@@ -12,7 +12,7 @@ type metrics struct {
 	journaled     prometheus.Counter
 }
 
-func newMetrics(reg prometheus.Registerer, db *badger.DB) *metrics {
+func newMetrics() *metrics {
 	m := &metrics{
 		commits: prometheus.NewCounter(prometheus.CounterOpts{
 			Name: "waymark_store_commits_total", Help: "Flush transactions committed to the store.",
@@ -28,11 +28,15 @@ func newMetrics(reg prometheus.Registerer, db *badger.DB) *metrics {
 			Name: "waymark_store_journaled_flushes_total", Help: "Flushes too large for one transaction, committed through the journal.",
 		}),
 	}
+	return m
+}
+
+// register registers the metrics with reg (nil: none).
+func (m *metrics) register(reg prometheus.Registerer, db *badger.DB) {
 	if reg != nil {
 		size := prometheus.NewGaugeFunc(prometheus.GaugeOpts{
 			Name: "waymark_store_size_bytes", Help: "On-disk size of the store (LSM tree and value log).",
 		}, func() float64 { l, v := db.Size(); return float64(l + v) })
 		reg.MustRegister(m.commits, m.commitBytes, m.commitSeconds, m.journaled, size)
 	}
-	return m
 }

@@ -78,11 +78,13 @@ func Open(ctx context.Context, dir string, opts Options) (*Store, error) {
 	if err != nil {
 		return nil, fmt.Errorf("open store %s: %w", dir, err)
 	}
-	s := &Store{db: db, log: opts.Logger, metrics: newMetrics(opts.Registerer, db), hookFn: opts.hook}
+	s := &Store{db: db, log: opts.Logger, metrics: newMetrics(), hookFn: opts.hook}
 	if err := s.recoverJournal(ctx); err != nil {
 		db.Close()
 		return nil, fmt.Errorf("open store %s: %w", dir, err)
 	}
+	// Registered only once the store opened, so a caller may try again.
+	s.metrics.register(opts.Registerer, db)
 	return s, nil
 }
 
@@ -192,6 +194,15 @@ func (s *Store) Scan(ctx context.Context, prefix []byte, f func(key, val []byte)
 func (s *Store) DropPrefix(prefix []byte) error {
 	if err := s.db.DropPrefix(prefix); err != nil {
 		return fmt.Errorf("drop %q: %w", prefix, err)
+	}
+	return nil
+}
+
+// Wipe deletes every key: the learned state, the checkpoint and the
+// replica identity. The store stays open.
+func (s *Store) Wipe() error {
+	if err := s.db.DropAll(); err != nil {
+		return fmt.Errorf("wipe store: %w", err)
 	}
 	return nil
 }

@@ -53,6 +53,7 @@ type serveFlags struct {
 	sync     bool
 	token    string
 	boot     bool
+	rebuild  bool
 	explore  int
 	fresh    string
 	seed     uint64
@@ -100,6 +101,7 @@ func newServeFlags(name string, stderr io.Writer) *serveFlags {
 	fs.StringVar(&f.fresh, "fresh", d.Engine.Fresh, "`spec` of the fresh-item exploration model, e.g. fresh(window=48,min_impressions=20)")
 	fs.Uint64Var(&f.seed, "explore-seed", 0, "seed of the exploration draws (fixed: reproducible)")
 	fs.BoolVar(&f.boot, "bootstrap", false, "start an empty data folder from the newest snapshot in the NATS object store")
+	fs.BoolVar(&f.rebuild, "rebuild-from-stream", false, "discard learned state that cannot continue from the events stream (checkpoint ahead of it, a gap, a re-created stream, a damaged store) and relearn the stream as it is now; consistent state is kept")
 	fs.StringVar(&f.debug, "debug-addr", "", "listen `address` for Go's pprof profiles (empty: off; keep it on loopback)")
 	fs.StringVar(&f.logLevel, "log-level", "info", "log `level`: debug, info, warn, error")
 	return f
@@ -153,6 +155,7 @@ func (f *serveFlags) options(log *slog.Logger) (session.ServiceOptions, error) {
 	o.Store.SyncWrites = f.sync
 	o.Token = f.token
 	o.Bootstrap = f.boot
+	o.RebuildFromStream = f.rebuild
 	o.Logger = log
 	return o, nil
 }

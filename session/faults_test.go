@@ -1,0 +1,159 @@
+package session
+
+import (
+	"context"
+	"fmt"
+	"io"
+	"net/http"
+	"os"
+	"path/filepath"
+	"strings"
+	"testing"
+	"time"
+
+	"waymark/stream"
+)
+
+// busEvents publishes n events (sessions of three clicks on 20 items) to
+// the server at url.
+func busEvents(t *testing.T, url string, n int) {
+	t.Helper()
+	ctx := context.Background()
+	bo := stream.DefaultBusOptions()
+	bo.URL = url
+	b, err := stream.Connect(ctx, bo)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer b.Close()
+	if err := b.EnsureStreams(ctx); err != nil {
+		t.Fatal(err)
+	}
+	evs := make([]stream.Event, n)
+	for i := range evs {
+		evs[i] = stream.Event{Session: fmt.Sprintf("later-%d", i/3), Item: fmt.Sprintf("i%d", i%20), TS: 1767312000000 + int64(i)}
+	}
+	if err := b.PublishEvents(ctx, evs); err != nil {
+		t.Fatal(err)
+	}
+}
+
+func getText(t *testing.T, url string) (int, string) {
+	t.Helper()
+	resp, err := http.Get(url)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer resp.Body.Close()
+	b, _ := io.ReadAll(resp.Body)
+	return resp.StatusCode, string(b)
+}
+
+// TestStreamFaults: a data folder whose state cannot continue from the
+// events stream (issue 12, finding 2: before, serve logged one WARN, said
+// ready, answered 2xx to writes and never applied them). Each case learns
+// the worked example's 171 events, damages the stream while serve is down,
+// and restarts: serve must not consume, must answer /readyz 503 naming the
+// reason, refuse writes with 503, set waymark_state_fault{reason} to 1,
+// and, restarted with RebuildFromStream, relearn the stream as it is now.
+func TestStreamFaults(t *testing.T) {
+	cases := []struct {
+		name   string
+		damage func(t *testing.T, srv *stream.Server)
+		reason string
+		after  uint64 // events in the stream after the damage
+	}{
+		{"stream files lost", func(t *testing.T, srv *stream.Server) {
+			// Emulated by a new server in a new folder: what serve finds
+			// when its JetStream folder is gone.
+		}, FaultCheckpointAhead, 0},
+		{"stream re-created and refilled", func(t *testing.T, srv *stream.Server) {
+			busEvents(t, srv.ClientURL(), 300)
+		}, FaultStreamRecreated, 300},
+		{"stream purged past the checkpoint", func(t *testing.T, srv *stream.Server) {
+			busEvents(t, srv.ClientURL(), 30)
+			ctx := context.Background()
+			bo := stream.DefaultBusOptions()
+			bo.URL = srv.ClientURL()
+			b, err := stream.Connect(ctx, bo)
+			if err != nil {
+				t.Fatal(err)
+			}
+			defer b.Close()
+			st, err := b.JetStream().Stream(ctx, bo.Stream)
+			if err != nil {
+				t.Fatal(err)
+			}
+			if err := st.Purge(ctx); err != nil {
+				t.Fatal(err)
+			}
+		}, FaultStreamGap, 0},
+	}
+	for _, c := range cases {
+		t.Run(c.name, func(t *testing.T) {
+			ctx := context.Background()
+			dir := t.TempDir()
+			srv, err := stream.StartServer(ctx, stream.ServerOptions{Dir: filepath.Join(dir, "bus"), Listen: "127.0.0.1:-1"})
+			if err != nil {
+				t.Fatal(err)
+			}
+			withBus := func(o *ServiceOptions) { o.Bus.URL = srv.ClientURL() }
+			s := newTestService(t, dir, withBus)
+			base := "http://" + s.HTTPAddr()
+			doJSON(t, "POST", base+"/v1/events", workedEvents(), nil)
+			waitFor(t, "the worked example to be committed", 20*time.Second, func() bool {
+				cp, err := s.st.Checkpoint()
+				return err == nil && cp.Seq == 171
+			})
+			shutdown(t, s)
+			switch c.reason {
+			case FaultStreamRecreated, FaultCheckpointAhead:
+				// A new, empty stream: the old server and its files are gone.
+				_ = srv.Shutdown(ctx)
+				if err := os.RemoveAll(filepath.Join(dir, "bus")); err != nil {
+					t.Fatal(err)
+				}
+				if srv, err = stream.StartServer(ctx, stream.ServerOptions{Dir: filepath.Join(dir, "bus"), Listen: "127.0.0.1:-1"}); err != nil {
+					t.Fatal(err)
+				}
+			}
+			defer srv.Shutdown(ctx)
+			c.damage(t, srv)
+
+			s = newTestService(t, dir, withBus)
+			base = "http://" + s.HTTPAddr()
+			code, body := getText(t, base+"/readyz")
+			if code != http.StatusServiceUnavailable || !strings.Contains(body, `"reason":"`+c.reason+`"`) || !strings.Contains(body, "--rebuild-from-stream") {
+				t.Fatalf("/readyz = %d %s; want 503 with reason %s and the way out", code, body, c.reason)
+			}
+			if code := doJSON(t, "POST", base+"/v1/events", workedEvents(), nil); code != http.StatusServiceUnavailable {
+				t.Fatalf("POST /v1/events = %d while the state cannot apply it; want 503", code)
+			}
+			_, metrics := getText(t, base+"/metrics")
+			if !strings.Contains(metrics, `waymark_state_fault{reason="`+c.reason+`"} 1`) {
+				t.Fatalf("metrics lack waymark_state_fault{reason=%q} 1", c.reason)
+			}
+			if code, _ := getText(t, base+"/v1/popular?k=3"); code != http.StatusOK {
+				t.Fatalf("GET /v1/popular = %d; queries must still be answered from the loaded state", code)
+			}
+			shutdown(t, s)
+
+			s = newTestService(t, dir, withBus, func(o *ServiceOptions) { o.RebuildFromStream = true })
+			defer shutdown(t, s)
+			base = "http://" + s.HTTPAddr()
+			waitFor(t, "readiness after the rebuild", 20*time.Second, func() bool {
+				code, _ := getText(t, base+"/readyz")
+				return code == http.StatusOK
+			})
+			if got := s.Engine().Stats().EventsApplied; got != c.after {
+				t.Fatalf("after the rebuild %d events applied; want the stream's %d", got, c.after)
+			}
+			if code := doJSON(t, "POST", base+"/v1/events", workedEvents(), nil); code/100 != 2 {
+				t.Fatalf("POST /v1/events after the rebuild = %d", code)
+			}
+			waitFor(t, "the new writes to be applied", 20*time.Second, func() bool {
+				return s.Engine().Stats().EventsApplied == c.after+171
+			})
+		})
+	}
+}
