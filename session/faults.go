@@ -158,20 +158,47 @@ func checkStream(seq uint64, storedID string, st streamState) (string, string) {
 	return "", ""
 }
 
-// openStore opens the store; with RebuildFromStream, a store that reports
-// itself corrupt is deleted and created empty, to be relearned.
-func (s *Service) openStore(ctx context.Context, so store.Options) (*store.Store, error) {
+// openStore opens the store. A store that reports itself corrupt is
+// returned as damaged, for rebuildDamaged to decide once the stream is
+// known.
+func (s *Service) openStore(ctx context.Context, so store.Options) (st *store.Store, damaged, err error) {
+	st, err = store.Open(ctx, filepath.Join(s.opts.DataDir, "store"), so)
+	if err != nil && errors.Is(err, store.ErrCorrupt) {
+		return nil, err, nil
+	}
+	return st, nil, err
+}
+
+// canRebuild tells whether damaged state may be discarded and relearned:
+// when the operator asks for it, or when the stream still holds every
+// message since sequence 1, so relearning gives exactly the lost state.
+func (s *Service) canRebuild(ctx context.Context, damage error) error {
+	if s.opts.RebuildFromStream {
+		s.log.Warn("rebuild-from-stream: the stored state is damaged; discarding it and relearning the stream as it is now", "err", damage)
+		return nil
+	}
+	c, cancel := context.WithTimeout(ctx, 10*time.Second)
+	defer cancel()
+	st, err := s.streamState(c)
+	if err != nil {
+		return fmt.Errorf("%w (and the stream cannot be read to rebuild it: %v)", damage, err)
+	}
+	if st.first > 1 || st.last == 0 {
+		return fmt.Errorf("%w; the events stream no longer holds every message since sequence 1 (it holds %d to %d), so it cannot be rebuilt exactly: restart with --rebuild-from-stream to relearn what the stream holds, or start an empty data folder with --bootstrap", damage, st.first, st.last)
+	}
+	s.log.Warn("the stored state is damaged; rebuilding it from the events stream, which holds every message since sequence 1", "err", damage, "stream_last", st.last)
+	return nil
+}
+
+// rebuildDamaged replaces a store that does not open with an empty one,
+// when canRebuild allows.
+func (s *Service) rebuildDamaged(ctx context.Context, so store.Options, damage error) (*store.Store, error) {
+	if err := s.canRebuild(ctx, damage); err != nil {
+		return nil, err
+	}
 	dir := filepath.Join(s.opts.DataDir, "store")
-	st, err := store.Open(ctx, dir, so)
-	if err == nil || !errors.Is(err, store.ErrCorrupt) {
-		return st, err
-	}
-	if !s.opts.RebuildFromStream {
-		return nil, fmt.Errorf("%w (restart with --rebuild-from-stream to discard it and relearn the stream)", err)
-	}
-	s.log.Warn("rebuild-from-stream: the store is damaged; deleting it and relearning the stream", "err", err)
 	if err := os.RemoveAll(dir); err != nil {
-		return nil, fmt.Errorf("rebuild-from-stream: delete %s: %w", dir, err)
+		return nil, fmt.Errorf("rebuild: delete %s: %w", dir, err)
 	}
 	return store.Open(ctx, dir, so)
 }

@@ -357,6 +357,7 @@ func (p *Pipeline) Flush(tx store.KV, cp store.Checkpoint) error {
 		}
 	}
 	cp.Config = p.fingerprint()
+	cp.Items = uint64(p.Dict.Len())
 	return store.PutCheckpoint(tx, cp)
 }
 
@@ -403,6 +404,16 @@ func (p *Pipeline) Load(ctx context.Context, st *store.Store) error {
 	}
 	if err := runTasks(ctx, runtime.GOMAXPROCS(0), tasks); err != nil {
 		return err
+	}
+	// The checkpoint is written with the state it describes: state
+	// without one (a lost checkpoint key) would replay the whole stream
+	// on top of the counts, and a dictionary of another size than it
+	// records means lost or foreign entries.
+	if cp.Seq == 0 && (p.Dict.Len() > 0 || p.Tracker.Len() > 0) {
+		return fmt.Errorf("%w: the store holds %d items and %d sessions but no checkpoint", store.ErrCorrupt, p.Dict.Len(), p.Tracker.Len())
+	}
+	if cp.Items != 0 && uint64(p.Dict.Len()) != cp.Items {
+		return fmt.Errorf("%w: the checkpoint records %d items, the dictionary holds %d", store.ErrCorrupt, cp.Items, p.Dict.Len())
 	}
 	p.cp = cp
 	if cp.DecayRef != 0 {

@@ -19,6 +19,7 @@ import (
 	"github.com/prometheus/client_golang/prometheus"
 	"github.com/prometheus/client_golang/prometheus/collectors"
 
+	"waymark/models"
 	"waymark/store"
 	"waymark/stream"
 )
@@ -165,7 +166,8 @@ func Open(ctx context.Context, opts ServiceOptions) (_ *Service, err error) {
 	}
 	so := opts.Store
 	so.Logger, so.Registerer = opts.Logger, s.reg
-	if s.st, err = s.openStore(ctx, so); err != nil {
+	var damaged error
+	if s.st, damaged, err = s.openStore(ctx, so); err != nil {
 		return nil, err
 	}
 	bo := opts.Bus
@@ -184,6 +186,11 @@ func Open(ctx context.Context, opts ServiceOptions) (_ *Service, err error) {
 	if err := s.bus.EnsureStreams(ctx); err != nil {
 		return nil, err
 	}
+	if damaged != nil {
+		if s.st, err = s.rebuildDamaged(ctx, so, damaged); err != nil {
+			return nil, err
+		}
+	}
 	if opts.Bootstrap {
 		if err := s.bootstrap(ctx); err != nil {
 			return nil, err
@@ -198,7 +205,21 @@ func Open(ctx context.Context, opts ServiceOptions) (_ *Service, err error) {
 	eo.CatalogSubject = s.bus.Options().CatalogSubject
 	eo.ControlSubject = s.bus.Options().ControlSubject
 	if s.eng, err = NewEngine(ctx, s.st, s.bus, eo); err != nil {
-		return nil, err
+		// Damage found while loading: relearn when allowed. The
+		// engine registers no metrics before its state has loaded.
+		if !errors.Is(err, store.ErrCorrupt) && !errors.Is(err, models.ErrCorrupt) {
+			return nil, err
+		}
+		if err := s.canRebuild(ctx, err); err != nil {
+			return nil, err
+		}
+		if err := s.st.Wipe(); err != nil {
+			return nil, err
+		}
+		fault = ""
+		if s.eng, err = NewEngine(ctx, s.st, s.bus, eo); err != nil {
+			return nil, err
+		}
 	}
 	if s.eng.StreamID() == "" {
 		s.eng.SetStreamID(s.streamID)

@@ -5,9 +5,12 @@ import (
 	"errors"
 	"fmt"
 	"log/slog"
+	"strings"
 	"time"
 
 	"github.com/dgraph-io/badger/v4"
+	"github.com/dgraph-io/badger/v4/options"
+	"github.com/dgraph-io/badger/v4/y"
 	"github.com/prometheus/client_golang/prometheus"
 )
 
@@ -74,7 +77,17 @@ func Open(ctx context.Context, dir string, opts Options) (*Store, error) {
 	if opts.InMemory {
 		bo = bo.WithDir("").WithValueDir("").WithInMemory(true)
 	}
-	db, err := badger.Open(bo)
+	// Every table's checksums are verified before Badger opens it
+	// (verify.go), every block's and value's when read: damage on disk is
+	// found at start, not served as state (issue 12). Verifying at open
+	// reads each table once more, about what loading the state reads.
+	bo = bo.WithChecksumVerificationMode(options.OnBlockRead).WithVerifyValueChecksum(true)
+	if !opts.InMemory {
+		if err := verifyTables(dir, bo); err != nil {
+			return nil, fmt.Errorf("open store %s: %w", dir, err)
+		}
+	}
+	db, err := openBadger(bo)
 	if err != nil {
 		return nil, fmt.Errorf("open store %s: %w", dir, err)
 	}
@@ -86,6 +99,45 @@ func Open(ctx context.Context, dir string, opts Options) (*Store, error) {
 	// Registered only once the store opened, so a caller may try again.
 	s.metrics.register(opts.Registerer, db)
 	return s, nil
+}
+
+// openBadger opens the database, turning a panic of Badger's on damaged
+// files (it panics on some truncated tables) and its checksum and
+// manifest errors into ErrCorrupt.
+func openBadger(bo badger.Options) (db *badger.DB, err error) {
+	defer func() {
+		if p := recover(); p != nil {
+			db, err = nil, fmt.Errorf("%w: %v", ErrCorrupt, firstLine(fmt.Sprint(p)))
+		}
+	}()
+	db, err = badger.Open(bo)
+	if err != nil && isDamage(err) {
+		return nil, fmt.Errorf("%w: %s", ErrCorrupt, firstLine(err.Error()))
+	}
+	return db, err
+}
+
+// isDamage tells errors of damaged files from others (a held lock, a
+// missing permission), which must not be taken for corruption: damage may
+// lead to discarding the store.
+func isDamage(err error) bool {
+	if errors.Is(err, y.ErrChecksumMismatch) || errors.Is(err, badger.ErrTruncateNeeded) {
+		return true
+	}
+	msg := strings.ToLower(err.Error())
+	for _, w := range []string{"checksum", "corrupt", "truncat", "unexpected eof", "invalid table", "bad magic", "out of range", "failed to decode"} {
+		if strings.Contains(msg, w) {
+			return true
+		}
+	}
+	return false
+}
+
+func firstLine(s string) string {
+	if i := strings.IndexByte(s, '\n'); i >= 0 {
+		return s[:i]
+	}
+	return s
 }
 
 // Close closes the database.
@@ -168,7 +220,14 @@ func (s *Store) Get(key []byte) ([]byte, error) {
 
 // Scan calls f for every key under prefix, in key order. The slices are
 // only valid during the call.
-func (s *Store) Scan(ctx context.Context, prefix []byte, f func(key, val []byte) error) error {
+func (s *Store) Scan(ctx context.Context, prefix []byte, f func(key, val []byte) error) (err error) {
+	defer func() {
+		// Badger panics on some damaged blocks; a damaged store is an
+		// error, never a crash.
+		if p := recover(); p != nil {
+			err = fmt.Errorf("%w: scan %q: %v", ErrCorrupt, prefix, firstLine(fmt.Sprint(p)))
+		}
+	}()
 	return s.db.View(func(tx *badger.Txn) error {
 		opts := badger.DefaultIteratorOptions
 		opts.Prefix = prefix
@@ -182,6 +241,9 @@ func (s *Store) Scan(ctx context.Context, prefix []byte, f func(key, val []byte)
 			}
 			item := it.Item()
 			err := item.Value(func(val []byte) error { return f(item.Key(), val) })
+			if err != nil && !errors.Is(err, ErrCorrupt) && isDamage(err) {
+				err = fmt.Errorf("%w: %v", ErrCorrupt, err)
+			}
 			if err != nil {
 				return fmt.Errorf("scan %q: %w", item.Key(), err)
 			}
