@@ -11,6 +11,9 @@ import (
 	"testing"
 	"time"
 
+	"github.com/nats-io/nats.go/jetstream"
+
+	"waymark/store"
 	"waymark/stream"
 )
 
@@ -155,5 +158,67 @@ func TestStreamFaults(t *testing.T) {
 				return s.Engine().Stats().EventsApplied == c.after+171
 			})
 		})
+	}
+}
+
+// TestLostCheckpointRebuilds: a store whose checkpoint key was deleted
+// (issue 12, finding 5: before, the whole stream was replayed on top of
+// the old counts, doubling popularity while events_applied looked right)
+// is taken for damaged. With the stream holding every message since
+// sequence 1, serve rebuilds and ends with exactly the clean counts; with
+// the stream's head purged, it refuses to start with one line naming the
+// way out.
+func TestLostCheckpointRebuilds(t *testing.T) {
+	ctx := context.Background()
+	dir := t.TempDir()
+	s := newTestService(t, dir)
+	base := "http://" + s.HTTPAddr()
+	doJSON(t, "POST", base+"/v1/events", workedEvents(), nil)
+	waitFor(t, "the worked example to be committed", 20*time.Second, func() bool {
+		cp, err := s.st.Checkpoint()
+		return err == nil && cp.Seq == 171
+	})
+	_, before := getText(t, base+"/v1/popular?k=10")
+	shutdown(t, s)
+	dropCheckpoint := func() {
+		st, err := store.Open(ctx, filepath.Join(dir, "store"), store.DefaultOptions())
+		if err != nil {
+			t.Fatal(err)
+		}
+		if err := st.Commit(func(tx *store.Txn) error { return tx.Delete([]byte("x/checkpoint")) }); err != nil {
+			t.Fatal(err)
+		}
+		if err := st.Close(); err != nil {
+			t.Fatal(err)
+		}
+	}
+	dropCheckpoint()
+
+	s = newTestService(t, dir)
+	base = "http://" + s.HTTPAddr()
+	waitFor(t, "the rebuild", 20*time.Second, func() bool {
+		code, _ := getText(t, base+"/readyz")
+		return code == http.StatusOK && s.Engine().Stats().EventsApplied == 171
+	})
+	if _, after := getText(t, base+"/v1/popular?k=10"); after != before {
+		t.Fatalf("popular after the rebuild:\n%s\nbefore:\n%s", after, before)
+	}
+	// Purge the stream's head: the state can no longer be rebuilt exactly.
+	st, err := s.Bus().JetStream().Stream(ctx, s.Bus().Options().Stream)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := st.Purge(ctx, jetstream.WithPurgeKeep(10)); err != nil {
+		t.Fatal(err)
+	}
+	shutdown(t, s)
+	dropCheckpoint()
+	o := DefaultServiceOptions()
+	o.DataDir, o.HTTPAddr, o.NATSListen = dir, "127.0.0.1:0", "127.0.0.1:-1"
+	if s, err := Open(ctx, o); err == nil {
+		shutdown(t, s)
+		t.Fatal("serve started on state without a checkpoint and a stream that cannot rebuild it")
+	} else if !strings.Contains(err.Error(), "no checkpoint") || !strings.Contains(err.Error(), "--rebuild-from-stream") || strings.Contains(err.Error(), "\n") {
+		t.Fatalf("refusal %q: want one line naming the damage and the way out", err)
 	}
 }
