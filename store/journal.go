@@ -113,8 +113,7 @@ func (c *chunkWriter) commit() error {
 	c.s.metrics.commits.Inc()
 	c.s.metrics.commitBytes.Add(float64(c.bytes))
 	c.bytes = 0
-	c.s.hook(c.stage)
-	return nil
+	return c.s.hook(c.stage)
 }
 
 func (c *chunkWriter) discard() { c.tx.Discard() }
@@ -122,26 +121,39 @@ func (c *chunkWriter) discard() { c.tx.Discard() }
 // commitJournaled commits b through the journal (see above).
 func (s *Store) commitJournaled(b *Batch) error {
 	s.metrics.journaled.Inc()
-	w := s.newChunkWriter("journal")
-	defer func() { w.discard() }()
-	for i, op := range b.ops {
-		if err := w.write(journalEntryKey(i), encodeOp(op), false); err != nil {
-			return fmt.Errorf("journal: %w", err)
+	if err := s.writeJournal(b); err != nil {
+		// Before the commit point nothing of the flush counts: drop
+		// what was written, so the next journal starts clean.
+		// (Had the marker's commit gone through, recoverJournal
+		// applies the flush instead, and the error still stops the
+		// writer, whose restart finds the flush applied.)
+		if cerr := s.recoverJournal(context.Background()); cerr != nil {
+			s.log.Warn("store: clearing a failed journal", "err", cerr)
 		}
-	}
-	if err := w.write(journalKey, []byte(strconv.Itoa(len(b.ops))), false); err != nil {
-		return fmt.Errorf("journal: %w", err)
-	}
-	w.stage = "journaled"
-	if err := w.commit(); err != nil {
 		return fmt.Errorf("journal: %w", err)
 	}
 	// From here on the flush is committed: a failure below leaves a
 	// complete journal that the next Open applies.
 	if err := s.applyJournal(b.ops); err != nil {
-		return fmt.Errorf("apply journal: %w", err)
+		return fmt.Errorf("apply journal (the flush is committed; the next Open completes it): %w", err)
 	}
 	return nil
+}
+
+// writeJournal writes b's journal and its marker, the commit point.
+func (s *Store) writeJournal(b *Batch) error {
+	w := s.newChunkWriter("journal")
+	defer func() { w.discard() }()
+	for i, op := range b.ops {
+		if err := w.write(journalEntryKey(i), encodeOp(op), false); err != nil {
+			return err
+		}
+	}
+	if err := w.write(journalKey, []byte(strconv.Itoa(len(b.ops))), false); err != nil {
+		return err
+	}
+	w.stage = "journaled"
+	return w.commit()
 }
 
 // applyJournal writes ops to their keys, then clears the journal of n
@@ -207,6 +219,9 @@ func (s *Store) recoverJournal(ctx context.Context) error {
 	}
 	ops := make([]batchOp, 0, n)
 	err = s.Scan(ctx, journalPrefix, func(key, val []byte) error {
+		if len(ops) == n {
+			return nil // leftovers of an older, longer journal: cleared below
+		}
 		if len(key) != len(journalPrefix)+8 || binary.BigEndian.Uint64(key[len(journalPrefix):]) != uint64(len(ops)) {
 			return fmt.Errorf("%w: journal key %x after %d entries", ErrCorrupt, key, len(ops))
 		}

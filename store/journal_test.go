@@ -171,14 +171,72 @@ func journalChild(t *testing.T) {
 	if err := st.CommitBatch(stateBatch(t, 1, journalKeys)); err != nil {
 		t.Fatal(err)
 	}
-	st.hookFn = func(s string) {
+	st.hookFn = func(s string) error {
 		if s == stage {
 			_ = syscall.Kill(os.Getpid(), syscall.SIGKILL)
 			select {}
 		}
+		return nil
 	}
 	if err := st.CommitBatch(stateBatch(t, 2, journalKeys/2)); err != nil {
 		t.Fatal(err)
 	}
 	t.Fatalf("stage %q never reached", stage)
+}
+
+// TestFailedCommitMidBatch: a flush fails in the middle of its
+// transactions (an error after the first of them, injected through the
+// test hook where a real disk error would strike). Failed before the
+// commit point, the store holds exactly the state before the flush, and
+// the next flush commits on a clean journal; failed after it, the flush is
+// committed and the next Open completes it.
+func TestFailedCommitMidBatch(t *testing.T) {
+	ctx := context.Background()
+	for _, c := range []struct {
+		stage string
+		after bool
+	}{{"journal", false}, {"apply", true}, {"clear", true}} {
+		t.Run(c.stage, func(t *testing.T) {
+			dir := t.TempDir()
+			st, err := Open(ctx, dir, smallOptions())
+			if err != nil {
+				t.Fatal(err)
+			}
+			if err := st.CommitBatch(stateBatch(t, 1, journalKeys)); err != nil {
+				t.Fatal(err)
+			}
+			injected := errors.New("injected failure")
+			st.hookFn = func(s string) error {
+				if s == c.stage {
+					return injected
+				}
+				return nil
+			}
+			if err := st.CommitBatch(stateBatch(t, 2, journalKeys/2)); !errors.Is(err, injected) {
+				t.Fatalf("commit failing at %s: %v", c.stage, err)
+			}
+			st.hookFn = nil
+			if !c.after {
+				cp, kv := readState(t, st)
+				checkState(t, cp, kv, 1, journalKeys)
+				if err := st.CommitBatch(stateBatch(t, 3, journalKeys/3)); err != nil {
+					t.Fatal(err)
+				}
+			}
+			if err := st.Close(); err != nil {
+				t.Fatal(err)
+			}
+			st, err = Open(ctx, dir, smallOptions())
+			if err != nil {
+				t.Fatal(err)
+			}
+			defer st.Close()
+			cp, kv := readState(t, st)
+			if c.after {
+				checkState(t, cp, kv, 2, journalKeys/2)
+			} else {
+				checkState(t, cp, kv, 3, journalKeys/3)
+			}
+		})
+	}
 }

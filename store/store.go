@@ -28,7 +28,7 @@ type Options struct {
 
 	// hook, when set (tests only), is called after each transaction of a
 	// multi-transaction flush with the stage it finished.
-	hook func(stage string)
+	hook func(stage string) error
 }
 
 // DefaultOptions returns the options serve uses.
@@ -54,13 +54,14 @@ type Store struct {
 	db      *badger.DB
 	log     *slog.Logger
 	metrics *metrics
-	hookFn  func(stage string)
+	hookFn  func(stage string) error
 }
 
-func (s *Store) hook(stage string) {
+func (s *Store) hook(stage string) error {
 	if s.hookFn != nil {
-		s.hookFn(stage)
+		return s.hookFn(stage)
 	}
+	return nil
 }
 
 // Open opens or creates the store in dir.
