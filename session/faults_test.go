@@ -8,6 +8,8 @@ import (
 	"os"
 	"path/filepath"
 	"strings"
+	"sync/atomic"
+	"syscall"
 	"testing"
 	"time"
 
@@ -220,5 +222,69 @@ func TestLostCheckpointRebuilds(t *testing.T) {
 		t.Fatal("serve started on state without a checkpoint and a stream that cannot rebuild it")
 	} else if !strings.Contains(err.Error(), "no checkpoint") || !strings.Contains(err.Error(), "--rebuild-from-stream") || strings.Contains(err.Error(), "\n") {
 		t.Fatalf("refusal %q: want one line naming the damage and the way out", err)
+	}
+}
+
+// TestNoSpacePausesAndResumes: a commit that fails for want of disk space
+// (issue 12, finding 6: before, the process died with SIGBUS in Badger's
+// memtable, and before that a commit error stopped the consumer for good)
+// sets the no_space fault, keeps the learned state answering, and is
+// retried until it fits; the stored state is then exactly what was
+// applied, and the fault clears. The failure is injected where the store's
+// commit returns; syscall.ENOSPC is what a full disk reports.
+func TestNoSpacePausesAndResumes(t *testing.T) {
+	ctx := context.Background()
+	st, err := store.Open(ctx, t.TempDir(), store.DefaultOptions())
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer st.Close()
+	e, err := NewEngine(ctx, st, nil, DefaultEngineOptions())
+	if err != nil {
+		t.Fatal(err)
+	}
+	var full atomic.Bool
+	var refused atomic.Int64
+	full.Store(true)
+	e.commit = func(b *store.Batch) error {
+		if full.Load() {
+			refused.Add(1)
+			return fmt.Errorf("commit: write: %w", syscall.ENOSPC)
+		}
+		return st.CommitBatch(b)
+	}
+	var msgs []stream.Msg
+	for i, line := range strings.Split(strings.TrimSpace(workedEvents()), "\n") {
+		msgs = append(msgs, stream.Msg{Seq: uint64(i + 1), Subject: "waymark.events", Data: []byte(line)})
+	}
+	if err := e.Handle(ctx, msgs); err != nil {
+		t.Fatal(err)
+	}
+	if err := e.Flush(ctx); err != nil {
+		t.Fatal(err)
+	}
+	waitFor(t, "the no_space fault", 10*time.Second, func() bool {
+		fs := e.Faults()
+		return len(fs) == 1 && fs[0].Reason == FaultNoSpace && strings.Contains(fs[0].Message, "no space left")
+	})
+	if got := e.Stats().EventsApplied; got != 171 {
+		t.Fatalf("%d events applied in memory while the disk is full, want 171", got)
+	}
+	if cp, _ := st.Checkpoint(); cp.Seq != 0 {
+		t.Fatalf("checkpoint at %d while every commit was refused", cp.Seq)
+	}
+	waitFor(t, "a retry of the refused commit", 10*time.Second, func() bool { return refused.Load() >= 2 })
+	full.Store(false)
+	sctx, cancel := context.WithTimeout(ctx, 20*time.Second)
+	defer cancel()
+	if err := e.Sync(sctx); err != nil {
+		t.Fatalf("sync once space returned: %v", err)
+	}
+	if fs := e.Faults(); len(fs) != 0 {
+		t.Fatalf("faults after space returned: %v", fs)
+	}
+	cp, err := st.Checkpoint()
+	if err != nil || cp.Seq != 171 || cp.Applied != 171 {
+		t.Fatalf("checkpoint %+v, %v; want seq and applied 171", cp, err)
 	}
 }

@@ -6,6 +6,7 @@ import (
 	"fmt"
 	"log/slog"
 	"strings"
+	"syscall"
 	"time"
 
 	"github.com/dgraph-io/badger/v4"
@@ -51,10 +52,12 @@ func (o *Options) validate() error {
 
 // Store is waymark's Badger database.
 type Store struct {
-	db      *badger.DB
-	log     *slog.Logger
-	metrics *metrics
-	hookFn  func(stage string) error
+	db       *badger.DB
+	log      *slog.Logger
+	metrics  *metrics
+	hookFn   func(stage string) error
+	dir      string // "" in memory
+	memtable int64
 }
 
 func (s *Store) hook(stage string) error {
@@ -92,7 +95,10 @@ func Open(ctx context.Context, dir string, opts Options) (*Store, error) {
 	if err != nil {
 		return nil, fmt.Errorf("open store %s: %w", dir, err)
 	}
-	s := &Store{db: db, log: opts.Logger, metrics: newMetrics(), hookFn: opts.hook}
+	s := &Store{db: db, log: opts.Logger, metrics: newMetrics(), hookFn: opts.hook, memtable: opts.MemTableSize}
+	if !opts.InMemory {
+		s.dir = dir
+	}
 	if err := s.recoverJournal(ctx); err != nil {
 		db.Close()
 		return nil, fmt.Errorf("open store %s: %w", dir, err)
@@ -327,6 +333,32 @@ func (b *Batch) Bytes() int { return b.bytes }
 // its own estimate already passes a limit, which spares building a
 // transaction only to have it refused.
 const entryOverhead = 32
+
+// spaceMargin is the free space kept beyond what a commit needs: Badger
+// writes through memory-mapped files, and a write into a mapped page the
+// full disk cannot back kills the process with SIGBUS instead of returning
+// an error, so the store must not start a write the disk cannot hold.
+const spaceMargin = 64 << 20
+
+// CheckSpace returns an error wrapping syscall.ENOSPC when the store's
+// disk has less free space than committing b needs: twice its bytes (a
+// journaled flush writes them twice), a memtable (the table it may flush
+// to) and a margin.
+func (s *Store) CheckSpace(b *Batch) error {
+	if s.dir == "" {
+		return nil
+	}
+	var fs syscall.Statfs_t
+	if err := syscall.Statfs(s.dir, &fs); err != nil {
+		return nil // unknown: let the write tell
+	}
+	free := int64(fs.Bavail) * int64(fs.Bsize)
+	need := 2*int64(b.Bytes()+entryOverhead*b.Len()) + s.memtable + spaceMargin
+	if free < need {
+		return fmt.Errorf("store: %d bytes free on the store's disk, a commit needs %d: %w", free, need, syscall.ENOSPC)
+	}
+	return nil
+}
 
 // CommitBatch writes b atomically: in one transaction when it fits
 // Badger's limits, else through the journal (journal.go), so no flush is
