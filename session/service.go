@@ -3,6 +3,7 @@ package session
 import (
 	"context"
 	"crypto/rand"
+	"crypto/sha256"
 	"encoding/hex"
 	"errors"
 	"fmt"
@@ -305,20 +306,69 @@ func (s *Service) bootstrap(ctx context.Context) error {
 		s.log.Info("bootstrap skipped: the data folder already holds state", "seq", cp.Seq)
 		return nil
 	}
-	info, r, err := s.bus.LatestSnapshot(ctx)
-	if errors.Is(err, stream.ErrNoSnapshot) {
-		s.log.Warn("bootstrap: no snapshot in the object store; replaying the whole stream")
-		return nil
-	}
+	list, err := s.bus.Snapshots(ctx)
 	if err != nil {
 		return fmt.Errorf("bootstrap: %w", err)
 	}
-	defer r.Close()
-	start := time.Now()
-	if err := s.st.Restore(ctx, r); err != nil {
-		return fmt.Errorf("bootstrap from %s: %w", info.Name, err)
+	// Newest first; a snapshot that fails its checksum or does not
+	// restore is skipped for the next (a damaged or planted object).
+	for _, info := range list {
+		start := time.Now()
+		if err := s.restoreSnapshot(ctx, info); err != nil {
+			s.log.Warn("bootstrap: snapshot skipped", "snapshot", info.Name, "seq", info.Seq, "err", err)
+			if werr := s.st.Wipe(); werr != nil {
+				return fmt.Errorf("bootstrap: clear a failed restore: %w", werr)
+			}
+			continue
+		}
+		s.log.Info("bootstrapped from snapshot", "snapshot", info.Name, "seq", info.Seq, "bytes", info.Bytes, "took", time.Since(start).Round(time.Millisecond))
+		return nil
 	}
-	s.log.Info("bootstrapped from snapshot", "snapshot", info.Name, "seq", info.Seq, "bytes", info.Bytes, "took", time.Since(start).Round(time.Millisecond))
+	s.log.Warn("bootstrap: no usable snapshot in the object store; replaying the whole stream", "snapshots", len(list))
+	return nil
+}
+
+// restoreSnapshot restores one snapshot after checking its SHA-256: the
+// snapshot is spooled to a file in the data folder while hashed, so
+// nothing unverified reaches the store; the restored checkpoint must be
+// at the snapshot's sequence.
+func (s *Service) restoreSnapshot(ctx context.Context, info stream.SnapshotInfo) error {
+	if len(info.SHA256) != 64 {
+		return errors.New("no checksum recorded")
+	}
+	r, err := s.bus.OpenSnapshot(ctx, info.Name)
+	if err != nil {
+		return err
+	}
+	defer r.Close()
+	f, err := os.CreateTemp(s.opts.DataDir, "snapshot-*.tmp")
+	if err != nil {
+		return err
+	}
+	defer func() {
+		f.Close()
+		os.Remove(f.Name())
+	}()
+	h := sha256.New()
+	if _, err := io.Copy(io.MultiWriter(f, h), r); err != nil {
+		return fmt.Errorf("download: %w", err)
+	}
+	if got := hex.EncodeToString(h.Sum(nil)); got != info.SHA256 {
+		return fmt.Errorf("checksum mismatch: recorded %s, content %s", info.SHA256, got)
+	}
+	if _, err := f.Seek(0, io.SeekStart); err != nil {
+		return err
+	}
+	if err := s.st.Restore(ctx, f); err != nil {
+		return err
+	}
+	cp, err := s.st.Checkpoint()
+	if err != nil {
+		return err
+	}
+	if cp.Seq != info.Seq {
+		return fmt.Errorf("%w: restored checkpoint at sequence %d, snapshot named for %d", store.ErrCorrupt, cp.Seq, info.Seq)
+	}
 	return nil
 }
 
