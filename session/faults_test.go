@@ -288,3 +288,76 @@ func TestNoSpacePausesAndResumes(t *testing.T) {
 		t.Fatalf("checkpoint %+v, %v; want seq and applied 171", cp, err)
 	}
 }
+
+// TestNoSpaceOnTmpfs is TestNoSpacePausesAndResumes on a real full
+// filesystem: the store on a 128 MiB tmpfs, a file filling it to 40 MiB
+// free. The commit is refused before Badger writes anything (a write into
+// a mapped page a full disk cannot back is SIGBUS, not an error), the
+// engine reports no_space, and once the file is removed the same flush
+// commits. It needs mount(2) (root); elsewhere it skips.
+func TestNoSpaceOnTmpfs(t *testing.T) {
+	mnt := filepath.Join(t.TempDir(), "mnt")
+	if err := os.Mkdir(mnt, 0o755); err != nil {
+		t.Fatal(err)
+	}
+	if err := syscall.Mount("tmpfs", mnt, "tmpfs", 0, "size=128m"); err != nil {
+		t.Skipf("cannot mount a tmpfs here (%v): the full-disk reaction is covered by TestNoSpacePausesAndResumes only", err)
+	}
+	defer syscall.Unmount(mnt, 0)
+	ctx := context.Background()
+	so := store.DefaultOptions()
+	so.MemTableSize = 8 << 20
+	st, err := store.Open(ctx, filepath.Join(mnt, "store"), so)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer st.Close()
+	e, err := NewEngine(ctx, st, nil, DefaultEngineOptions())
+	if err != nil {
+		t.Fatal(err)
+	}
+	var fs syscall.Statfs_t
+	if err := syscall.Statfs(mnt, &fs); err != nil {
+		t.Fatal(err)
+	}
+	filler := filepath.Join(mnt, "filler")
+	f, err := os.Create(filler)
+	if err != nil {
+		t.Fatal(err)
+	}
+	chunk := make([]byte, 1<<20)
+	for free := int64(fs.Bavail) * int64(fs.Bsize); free > 40<<20; free -= 1 << 20 {
+		if _, err := f.Write(chunk); err != nil {
+			t.Fatal(err)
+		}
+	}
+	f.Close()
+	var msgs []stream.Msg
+	for i, line := range strings.Split(strings.TrimSpace(workedEvents()), "\n") {
+		msgs = append(msgs, stream.Msg{Seq: uint64(i + 1), Subject: "waymark.events", Data: []byte(line)})
+	}
+	if err := e.Handle(ctx, msgs); err != nil {
+		t.Fatal(err)
+	}
+	if err := e.Flush(ctx); err != nil {
+		t.Fatal(err)
+	}
+	waitFor(t, "the no_space fault", 10*time.Second, func() bool {
+		fs := e.Faults()
+		return len(fs) == 1 && fs[0].Reason == FaultNoSpace
+	})
+	if cp, _ := st.Checkpoint(); cp.Seq != 0 {
+		t.Fatalf("checkpoint at %d on a full disk", cp.Seq)
+	}
+	if err := os.Remove(filler); err != nil {
+		t.Fatal(err)
+	}
+	sctx, cancel := context.WithTimeout(ctx, 20*time.Second)
+	defer cancel()
+	if err := e.Sync(sctx); err != nil {
+		t.Fatalf("sync once space returned: %v", err)
+	}
+	if cp, err := st.Checkpoint(); err != nil || cp.Seq != 171 || len(e.Faults()) != 0 {
+		t.Fatalf("checkpoint %+v, %v, faults %v; want seq 171 and none", cp, err, e.Faults())
+	}
+}
