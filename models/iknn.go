@@ -225,3 +225,9 @@ func (m *IKNN) Rescale(f float64) {
 
 // DirtyBytes estimates the next flush's size.
 func (m *IKNN) DirtyBytes() int { return m.covis.dirtyBytes + 12*len(m.support.dirty) }
+
+// LoadBound implements ItemBounded.
+func (m *IKNN) LoadBound(n int) { m.support.bound, m.covis.bound = n, n }
+
+// LoadedItems implements ItemBounded.
+func (m *IKNN) LoadedItems() int { return max(m.support.seen, m.covis.seen) }

@@ -60,3 +60,9 @@ func (m *Markov) Rescale(f float64) {
 
 // DirtyBytes estimates the next flush's size.
 func (m *Markov) DirtyBytes() int { return m.trans.dirtyBytes }
+
+// LoadBound implements ItemBounded.
+func (m *Markov) LoadBound(n int) { m.trans.bound = n }
+
+// LoadedItems implements ItemBounded.
+func (m *Markov) LoadedItems() int { return m.trans.seen }

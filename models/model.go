@@ -89,6 +89,17 @@ type Persistent interface {
 	Load(key, val []byte) error
 }
 
+// ItemBounded is a Persistent model that checks the item ids it loads, so
+// a damaged entry cannot make it grow toward four billion ids.
+type ItemBounded interface {
+	// LoadBound makes Load refuse an item id at or above n with
+	// ErrCorrupt (0: no bound). It is called before Load.
+	LoadBound(n int)
+	// LoadedItems returns one more than the largest item id Load met, for
+	// the caller to check against the dictionary.
+	LoadedItems() int
+}
+
 // ItemInfo is a catalogue record as models see it.
 type ItemInfo struct {
 	Item ItemID

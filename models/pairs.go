@@ -25,6 +25,9 @@ type pairTable struct {
 	// row needs.
 	pool    slotPool
 	scratch []pairEntry
+	// bound, when above 0, is the item ids load accepts (below it); seen
+	// is one more than the largest id load has met (see ItemBounded).
+	bound, seen int
 }
 
 type pairRow = row
@@ -230,11 +233,29 @@ func (t *pairTable) load(key, val []byte) error {
 		return fmt.Errorf("%w: pair row key %x, %d value bytes", ErrCorrupt, key, len(val))
 	}
 	a := binary.BigEndian.Uint32(key)
+	if err := t.check(a); err != nil {
+		return err
+	}
+	for i := 0; i < len(val); i += 12 {
+		if err := t.check(binary.BigEndian.Uint32(val[i:])); err != nil {
+			return err
+		}
+	}
 	r := t.row(a)
 	r.reset(len(val) / 12)
 	for i := 0; i < len(val); i += 12 {
 		r.add(binary.BigEndian.Uint32(val[i:]), math.Float64frombits(binary.BigEndian.Uint64(val[i+4:])))
 	}
+	return nil
+}
+
+// check refuses an id at or above the bound, before it can grow the rows
+// (a key of ff ff ff ff would ask for four billion), and notes the largest.
+func (t *pairTable) check(id ItemID) error {
+	if t.bound > 0 && int64(id) >= int64(t.bound) {
+		return fmt.Errorf("%w: item id %d, at or above the bound %d", ErrCorrupt, id, t.bound)
+	}
+	t.seen = max(t.seen, int(id)+1)
 	return nil
 }
 
@@ -265,6 +286,8 @@ type vector struct {
 	v     []float64
 	flag  []bool
 	dirty []ItemID
+	// bound and seen are pairTable's.
+	bound, seen int
 }
 
 func (c *vector) add(id ItemID, w float64) {
@@ -305,6 +328,10 @@ func (c *vector) load(key, val []byte) error {
 		return fmt.Errorf("%w: value key %x, %d value bytes", ErrCorrupt, key, len(val))
 	}
 	id := binary.BigEndian.Uint32(key)
+	if c.bound > 0 && int64(id) >= int64(c.bound) {
+		return fmt.Errorf("%w: item id %d, at or above the bound %d", ErrCorrupt, id, c.bound)
+	}
+	c.seen = max(c.seen, int(id)+1)
 	c.add(id, math.Float64frombits(binary.BigEndian.Uint64(val)))
 	c.flag[id] = false
 	c.dirty = c.dirty[:0]

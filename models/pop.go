@@ -70,3 +70,9 @@ func (p *Pop) Rescale(f float64) { p.counts.rescale(f) }
 
 // DirtyBytes estimates the next flush's size.
 func (p *Pop) DirtyBytes() int { return 20 * len(p.counts.dirty) }
+
+// LoadBound implements ItemBounded.
+func (p *Pop) LoadBound(n int) { p.counts.bound = n }
+
+// LoadedItems implements ItemBounded.
+func (p *Pop) LoadedItems() int { return p.counts.seen }

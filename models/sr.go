@@ -68,3 +68,9 @@ func (m *SR) Rescale(f float64) {
 
 // DirtyBytes estimates the next flush's size.
 func (m *SR) DirtyBytes() int { return m.rules.dirtyBytes }
+
+// LoadBound implements ItemBounded.
+func (m *SR) LoadBound(n int) { m.rules.bound = n }
+
+// LoadedItems implements ItemBounded.
+func (m *SR) LoadedItems() int { return m.rules.seen }

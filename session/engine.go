@@ -8,6 +8,7 @@ import (
 	"log/slog"
 	"sync"
 	"sync/atomic"
+	"syscall"
 	"time"
 
 	"github.com/prometheus/client_golang/prometheus"
@@ -180,6 +181,12 @@ type Engine struct {
 	lastCommit chan struct{}    // closed when the newest commit handed off is done
 	lastFlush  time.Time
 
+	// faults are the reasons the state takes no writes now (faults.go).
+	faults *faults
+	// commit commits a flush; nil is the store's, with a check of free
+	// space first. Tests replace it to fail like a full disk.
+	commit func(*store.Batch) error
+
 	// Readable from any goroutine.
 	applied    atomic.Uint64
 	rejected   atomic.Uint64
@@ -229,11 +236,20 @@ func NewEngine(ctx context.Context, st *store.Store, dlq DeadLetterer, opts Engi
 	e.cp = p.Checkpoint()
 	e.publishCounters()
 	e.met = newMetrics(opts.Registerer, e)
+	e.faults = newFaults(opts.Registerer)
 	e.loaded.Store(true)
 	e.log.Info("state loaded", "seq", e.cp.Seq, "events_applied", e.cp.Applied,
 		"items", p.Dict.Len(), "sessions", p.Tracker.Len(), "took", time.Since(start).Round(time.Millisecond))
 	return e, nil
 }
+
+// StreamID returns the id of the stream the state was learned from ("" when
+// not recorded yet).
+func (e *Engine) StreamID() string { return e.cp.Stream }
+
+// SetStreamID records the id of the stream the state learns from; the next
+// flush stores it with the checkpoint. Call it before consuming starts.
+func (e *Engine) SetStreamID(id string) { e.cp.Stream = id }
 
 // ResumeSeq is the first stream sequence the consumer must deliver.
 func (e *Engine) ResumeSeq() uint64 { return e.lastSeq.Load() + 1 }
@@ -416,7 +432,7 @@ func (e *Engine) Flush(ctx context.Context) error {
 			// that never existed.
 			return
 		}
-		if err := e.st.CommitBatch(b); err != nil {
+		if err := e.commitRetrying(b); err != nil {
 			e.errMu.Lock()
 			e.commitErr = fmt.Errorf("flush at seq %d: %w", cp.Seq, err)
 			e.errMu.Unlock()
@@ -434,6 +450,40 @@ func (e *Engine) Flush(ctx context.Context) error {
 	return nil
 }
 
+// noSpaceRetry is how often a commit the disk had no room for is tried
+// again.
+const noSpaceRetry = time.Second
+
+// commitRetrying commits b. A full disk (ENOSPC, or less free space than
+// the commit needs) is not an error that stops the service: the engine
+// reports the no_space fault, the commits behind this one wait, and so the
+// consumer stops fetching once two flushes are pending; queries go on from
+// memory. The same batch, an exact state, is tried again until it fits, so
+// consuming resumes exactly where it paused.
+func (e *Engine) commitRetrying(b *store.Batch) error {
+	commit := e.commit
+	if commit == nil {
+		commit = func(b *store.Batch) error {
+			if err := e.st.CheckSpace(b); err != nil {
+				return err
+			}
+			return e.st.CommitBatch(b)
+		}
+	}
+	for {
+		err := commit(b)
+		if err == nil {
+			e.ClearFault(FaultNoSpace)
+			return nil
+		}
+		if !errors.Is(err, syscall.ENOSPC) {
+			return err
+		}
+		e.SetFault(FaultNoSpace, "no space left on the store's disk: consuming is paused and queries are answered from memory until space is freed ("+err.Error()+")")
+		time.Sleep(noSpaceRetry)
+	}
+}
+
 func (e *Engine) failed() error {
 	e.errMu.Lock()
 	defer e.errMu.Unlock()
@@ -446,7 +496,11 @@ func (e *Engine) Sync(ctx context.Context) error {
 		return err
 	}
 	if e.lastCommit != nil {
-		<-e.lastCommit
+		select {
+		case <-e.lastCommit:
+		case <-ctx.Done():
+			return fmt.Errorf("sync: %w", ctx.Err())
+		}
 	}
 	return e.failed()
 }

@@ -172,8 +172,10 @@ func (s *Server) route(pattern string, h http.HandlerFunc) {
 // PriorsFormat names the priors export format in its header line.
 const PriorsFormat = "waymark-priors"
 
-// guard requires the bearer token on write and admin routes.
+// guard requires the bearer token on write and admin routes, and refuses
+// writes while the state has a fault (refuseWrites).
 func (s *Server) guard(h http.HandlerFunc) http.HandlerFunc {
+	h = s.refuseWrites(h)
 	if s.opts.Token == "" {
 		return h
 	}
@@ -184,6 +186,21 @@ func (s *Server) guard(h http.HandlerFunc) http.HandlerFunc {
 			w.Header().Set("WWW-Authenticate", `Bearer realm="waymark"`)
 			writeError(w, http.StatusUnauthorized, CodeUnauthorized, "this endpoint needs Authorization: Bearer <token>")
 			return
+		}
+		h(w, r)
+	}
+}
+
+// refuseWrites answers 503 to a write while the engine reports a fault
+// (faults.go): a 2xx on a write means it will be applied, and a faulted
+// state does not apply what it is sent.
+func (s *Server) refuseWrites(h http.HandlerFunc) http.HandlerFunc {
+	return func(w http.ResponseWriter, r *http.Request) {
+		if r.Method != http.MethodGet && r.Method != http.MethodHead {
+			if fs := s.eng.Faults(); len(fs) > 0 {
+				writeError(w, http.StatusServiceUnavailable, CodeUnavailable, "writes refused: "+faultText(fs))
+				return
+			}
 		}
 		h(w, r)
 	}
@@ -610,6 +627,14 @@ func (s *Server) stats(w http.ResponseWriter, r *http.Request) {
 
 func (s *Server) readyz(w http.ResponseWriter, r *http.Request) {
 	ok, why := s.opts.Ready()
+	if fs := s.eng.Faults(); len(fs) > 0 {
+		// The state cannot take writes: say why, by reason.
+		writeJSON(w, http.StatusServiceUnavailable, map[string]any{
+			"status": "not ready", "reason": fs[0].Reason, "faults": fs,
+			"error": apiError{Code: CodeUnavailable, Message: faultText(fs)},
+		})
+		return
+	}
 	if !ok {
 		writeError(w, http.StatusServiceUnavailable, CodeUnavailable, why)
 		return

@@ -362,6 +362,7 @@ func (p *Pipeline) Flush(tx store.KV, cp store.Checkpoint) error {
 		}
 	}
 	cp.Config = p.fingerprint()
+	cp.Items = uint64(p.Dict.Len())
 	return store.PutCheckpoint(tx, cp)
 }
 
@@ -396,6 +397,18 @@ func (p *Pipeline) Load(ctx context.Context, st *store.Store) error {
 			return nil
 		},
 	}
+	// Item ids in model entries are bounded while loading (the dictionary
+	// is loading alongside) by the most the state can hold, and checked
+	// against the dictionary's size once it has loaded.
+	bound := max(p.opts.MaxItems, int(cp.Items))
+	if cp.Items == 0 {
+		bound = max(bound, DefaultPipelineOptions().MaxItems)
+	}
+	for _, m := range p.learners {
+		if b, ok := m.(models.ItemBounded); ok {
+			b.LoadBound(bound)
+		}
+	}
 	for _, m := range p.learners {
 		if pm, ok := m.(models.Persistent); ok {
 			tasks = append(tasks, func(ctx context.Context) error {
@@ -408,6 +421,21 @@ func (p *Pipeline) Load(ctx context.Context, st *store.Store) error {
 	}
 	if err := runTasks(ctx, runtime.GOMAXPROCS(0), tasks); err != nil {
 		return err
+	}
+	// The checkpoint is written with the state it describes: state
+	// without one (a lost checkpoint key) would replay the whole stream
+	// on top of the counts, and a dictionary of another size than it
+	// records means lost or foreign entries.
+	if cp.Seq == 0 && (p.Dict.Len() > 0 || p.Tracker.Len() > 0) {
+		return fmt.Errorf("%w: the store holds %d items and %d sessions but no checkpoint", store.ErrCorrupt, p.Dict.Len(), p.Tracker.Len())
+	}
+	for i, m := range p.learners {
+		if b, ok := m.(models.ItemBounded); ok && b.LoadedItems() > p.Dict.Len() {
+			return fmt.Errorf("%w: model %s refers to item id %d, the dictionary holds %d", models.ErrCorrupt, p.Set.Keys()[i], b.LoadedItems()-1, p.Dict.Len())
+		}
+	}
+	if cp.Items != 0 && uint64(p.Dict.Len()) != cp.Items {
+		return fmt.Errorf("%w: the checkpoint records %d items, the dictionary holds %d", store.ErrCorrupt, cp.Items, p.Dict.Len())
 	}
 	p.cp = cp
 	if cp.DecayRef != 0 {

@@ -4,6 +4,7 @@ import (
 	"cmp"
 	"context"
 	"crypto/rand"
+	"crypto/sha256"
 	"encoding/hex"
 	"errors"
 	"fmt"
@@ -20,6 +21,7 @@ import (
 	"github.com/prometheus/client_golang/prometheus"
 	"github.com/prometheus/client_golang/prometheus/collectors"
 
+	"waymark/models"
 	"waymark/store"
 	"waymark/stream"
 )
@@ -64,7 +66,13 @@ type ServiceOptions struct {
 	// snapshot --out` (GET /v1/admin/snapshot?to=download) into an empty
 	// data folder instead; the stream must still hold what came after it.
 	BootstrapFile string
-	Logger        *slog.Logger
+	// RebuildFromStream discards learned state that cannot continue from
+	// the events stream (checkpoint ahead of it, a gap, a re-created
+	// stream, or a store that reports itself corrupt) and relearns the
+	// stream as it is now. State that is consistent with the stream is
+	// kept.
+	RebuildFromStream bool
+	Logger            *slog.Logger
 }
 
 // Version is the service version reported to NATS service discovery.
@@ -111,6 +119,8 @@ type Service struct {
 	wg       sync.WaitGroup
 	stop     context.CancelFunc
 	errc     chan error
+	// streamID is the events stream's id (creation time) at start.
+	streamID string
 }
 
 // Open starts every part. On error, whatever started is stopped again.
@@ -183,7 +193,8 @@ func Open(ctx context.Context, opts ServiceOptions) (_ *Service, err error) {
 	}
 	so := opts.Store
 	so.Logger, so.Registerer = opts.Logger, s.reg
-	if s.st, err = store.Open(ctx, filepath.Join(opts.DataDir, "store"), so); err != nil {
+	var damaged error
+	if s.st, damaged, err = s.openStore(ctx, so); err != nil {
 		return nil, err
 	}
 	bo := opts.Bus
@@ -207,17 +218,43 @@ func Open(ctx context.Context, opts ServiceOptions) (_ *Service, err error) {
 	if err := s.bus.EnsureStreams(ctx); err != nil {
 		return nil, err
 	}
+	if damaged != nil {
+		if s.st, err = s.rebuildDamaged(ctx, so, damaged); err != nil {
+			return nil, err
+		}
+	}
 	if opts.Bootstrap || opts.BootstrapFile != "" {
 		if err := s.bootstrap(ctx); err != nil {
 			return nil, err
 		}
+	}
+	fault, why, err := s.checkStart(ctx)
+	if err != nil {
+		return nil, err
 	}
 	eo := opts.Engine
 	eo.Logger, eo.Registerer = opts.Logger, s.reg
 	eo.CatalogSubject = s.bus.Options().CatalogSubject
 	eo.ControlSubject = s.bus.Options().ControlSubject
 	if s.eng, err = NewEngine(ctx, s.st, s.bus, eo); err != nil {
-		return nil, err
+		// Damage found while loading: relearn when allowed. The
+		// engine registers no metrics before its state has loaded.
+		if !errors.Is(err, store.ErrCorrupt) && !errors.Is(err, models.ErrCorrupt) {
+			return nil, err
+		}
+		if err := s.canRebuild(ctx, err); err != nil {
+			return nil, err
+		}
+		if err := s.st.Wipe(); err != nil {
+			return nil, err
+		}
+		fault = ""
+		if s.eng, err = NewEngine(ctx, s.st, s.bus, eo); err != nil {
+			return nil, err
+		}
+	}
+	if s.eng.StreamID() == "" {
+		s.eng.SetStreamID(s.streamID)
 	}
 	replica, err := s.st.ReplicaID(newReplicaID)
 	if err != nil {
@@ -225,19 +262,12 @@ func Open(ctx context.Context, opts ServiceOptions) (_ *Service, err error) {
 	}
 	runCtx, cancel := context.WithCancel(context.Background())
 	s.stop = cancel
-	s.cons, err = s.bus.Consume(runCtx, stream.ConsumerOptions{
-		Name:          "waymark-" + replica,
-		StartSeq:      s.eng.ResumeSeq(),
-		Batch:         opts.Batch,
-		MaxAckPending: opts.MaxAckPending,
-		// A fetch returns when its batch is full or after MaxWait; below
-		// Batch/MaxWait events a second, that wait is the delay between
-		// an event's publication and its use in answers. Under load the
-		// batches fill first and the wait does not matter.
-		MaxWait: freshWait,
-	}, s.eng.Handle)
-	if err != nil {
-		return nil, fmt.Errorf("start consumer: %w", err)
+	if fault != "" {
+		// Nothing is consumed: the HTTP API still answers queries from
+		// the state as loaded, and refuses readiness and writes.
+		s.eng.SetFault(fault, why)
+	} else if err := s.startConsumer(runCtx, replica); err != nil {
+		return nil, err
 	}
 	s.wg.Add(1)
 	go s.pollStream(runCtx)
@@ -263,6 +293,27 @@ func Open(ctx context.Context, opts ServiceOptions) (_ *Service, err error) {
 			s.errc <- fmt.Errorf("http: %w", err)
 		}
 	}()
+	s.log.Info("serving", "http", s.httpAddr, "nats", bo.URL, "consumer", "waymark-"+replica, "resume_seq", s.eng.ResumeSeq())
+	return s, nil
+}
+
+// startConsumer starts consuming after the engine's checkpoint.
+func (s *Service) startConsumer(runCtx context.Context, replica string) error {
+	var err error
+	s.cons, err = s.bus.Consume(runCtx, stream.ConsumerOptions{
+		Name:          "waymark-" + replica,
+		StartSeq:      s.eng.ResumeSeq(),
+		Batch:         s.opts.Batch,
+		MaxAckPending: s.opts.MaxAckPending,
+		// A fetch returns when its batch is full or after MaxWait; below
+		// Batch/MaxWait events a second, that wait is the delay between
+		// an event's publication and its use in answers. Under load the
+		// batches fill first and the wait does not matter.
+		MaxWait: freshWait,
+	}, s.eng.Handle)
+	if err != nil {
+		return fmt.Errorf("start consumer: %w", err)
+	}
 	s.wg.Add(1)
 	go func() {
 		defer s.wg.Done()
@@ -274,8 +325,7 @@ func Open(ctx context.Context, opts ServiceOptions) (_ *Service, err error) {
 		case <-runCtx.Done():
 		}
 	}()
-	s.log.Info("serving", "http", s.httpAddr, "nats", bo.URL, "consumer", "waymark-"+replica, "resume_seq", s.eng.ResumeSeq())
-	return s, nil
+	return nil
 }
 
 // bootstrap restores the newest snapshot into an empty store.
@@ -291,20 +341,69 @@ func (s *Service) bootstrap(ctx context.Context) error {
 	if s.opts.BootstrapFile != "" {
 		return s.bootstrapFile(ctx, s.opts.BootstrapFile)
 	}
-	info, r, err := s.bus.LatestSnapshot(ctx)
-	if errors.Is(err, stream.ErrNoSnapshot) {
-		s.log.Warn("bootstrap: no snapshot in the object store; replaying the whole stream")
-		return nil
-	}
+	list, err := s.bus.Snapshots(ctx)
 	if err != nil {
 		return fmt.Errorf("bootstrap: %w", err)
 	}
-	defer r.Close()
-	start := time.Now()
-	if err := s.st.Restore(ctx, r); err != nil {
-		return fmt.Errorf("bootstrap from %s: %w", info.Name, err)
+	// Newest first; a snapshot that fails its checksum or does not
+	// restore is skipped for the next (a damaged or planted object).
+	for _, info := range list {
+		start := time.Now()
+		if err := s.restoreSnapshot(ctx, info); err != nil {
+			s.log.Warn("bootstrap: snapshot skipped", "snapshot", info.Name, "seq", info.Seq, "err", err)
+			if werr := s.st.Wipe(); werr != nil {
+				return fmt.Errorf("bootstrap: clear a failed restore: %w", werr)
+			}
+			continue
+		}
+		s.log.Info("bootstrapped from snapshot", "snapshot", info.Name, "seq", info.Seq, "bytes", info.Bytes, "took", time.Since(start).Round(time.Millisecond))
+		return nil
 	}
-	s.log.Info("bootstrapped from snapshot", "snapshot", info.Name, "seq", info.Seq, "bytes", info.Bytes, "took", time.Since(start).Round(time.Millisecond))
+	s.log.Warn("bootstrap: no usable snapshot in the object store; replaying the whole stream", "snapshots", len(list))
+	return nil
+}
+
+// restoreSnapshot restores one snapshot after checking its SHA-256: the
+// snapshot is spooled to a file in the data folder while hashed, so
+// nothing unverified reaches the store; the restored checkpoint must be
+// at the snapshot's sequence.
+func (s *Service) restoreSnapshot(ctx context.Context, info stream.SnapshotInfo) error {
+	if len(info.SHA256) != 64 {
+		return errors.New("no checksum recorded")
+	}
+	r, err := s.bus.OpenSnapshot(ctx, info.Name)
+	if err != nil {
+		return err
+	}
+	defer r.Close()
+	f, err := os.CreateTemp(s.opts.DataDir, "snapshot-*.tmp")
+	if err != nil {
+		return err
+	}
+	defer func() {
+		f.Close()
+		os.Remove(f.Name())
+	}()
+	h := sha256.New()
+	if _, err := io.Copy(io.MultiWriter(f, h), r); err != nil {
+		return fmt.Errorf("download: %w", err)
+	}
+	if got := hex.EncodeToString(h.Sum(nil)); got != info.SHA256 {
+		return fmt.Errorf("checksum mismatch: recorded %s, content %s", info.SHA256, got)
+	}
+	if _, err := f.Seek(0, io.SeekStart); err != nil {
+		return err
+	}
+	if err := s.st.Restore(ctx, f); err != nil {
+		return err
+	}
+	cp, err := s.st.Checkpoint()
+	if err != nil {
+		return err
+	}
+	if cp.Seq != info.Seq {
+		return fmt.Errorf("%w: restored checkpoint at sequence %d, snapshot named for %d", store.ErrCorrupt, cp.Seq, info.Seq)
+	}
 	return nil
 }
 
@@ -345,15 +444,26 @@ func newReplicaID() string {
 	return hex.EncodeToString(b[:])
 }
 
-// pollStream keeps the stream's last sequence fresh for lag and readiness.
+// pollStream keeps the stream's last sequence fresh for lag and readiness,
+// and stops consuming when the stream stops matching the state (it was
+// re-created, or dropped messages not yet applied).
 func (s *Service) pollStream(ctx context.Context) {
 	defer s.wg.Done()
 	t := time.NewTicker(250 * time.Millisecond)
 	defer t.Stop()
+	stopped := false
 	for {
+		// The applied sequence is read before the stream: the stream can
+		// only have grown since.
+		seq := s.eng.lastSeq.Load()
 		c, cancel := context.WithTimeout(ctx, 2*time.Second)
-		if last, err := s.bus.LastSequence(c); err == nil {
-			s.eng.SetStreamLast(last)
+		if st, err := s.streamState(c); err == nil {
+			s.eng.SetStreamLast(st.last)
+			if reason, msg := checkStream(seq, s.streamID, st); reason != "" && s.cons != nil && !stopped {
+				s.eng.SetFault(reason, msg)
+				s.cons.Stop()
+				stopped = true
+			}
 		}
 		cancel()
 		select {
@@ -367,6 +477,12 @@ func (s *Service) pollStream(ctx context.Context) {
 func (s *Service) ready() (bool, string) {
 	if !s.eng.Loaded() {
 		return false, "state not loaded"
+	}
+	if fs := s.eng.Faults(); len(fs) > 0 {
+		return false, faultText(fs)
+	}
+	if s.cons == nil {
+		return false, "consumer not started"
 	}
 	select {
 	case <-s.cons.Closed():

@@ -29,6 +29,12 @@ type Checkpoint struct {
 	Touches uint64 `json:"touches"`
 	// Config fingerprints the model configuration the counts were made with.
 	Config string `json:"config,omitempty"`
+	// Stream identifies the events stream the state was learned from (its
+	// creation time), so a re-created stream is told from the old one.
+	Stream string `json:"stream,omitempty"`
+	// Items is the size of the item dictionary the state holds, checked
+	// against the dictionary loaded.
+	Items uint64 `json:"items,omitempty"`
 }
 
 var checkpointKey = []byte("x/checkpoint")

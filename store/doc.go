@@ -12,8 +12,10 @@
 //
 // # Durability
 //
-// Every flush of the learners is one Badger transaction holding the changed
-// counts, the session windows, new dictionary entries and the [Checkpoint]:
+// Every flush of the learners is one atomic commit (one Badger transaction,
+// or a redo journal over several when it exceeds a transaction's limits:
+// journal.go) holding the changed counts, the session windows, new
+// dictionary entries and the [Checkpoint]:
 // the last applied stream sequence and the exact event counters. The bus is
 // acknowledged only after that commit, and on start the consumer resumes
 // after the stored sequence, so a crash at any moment loses nothing and

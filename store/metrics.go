@@ -9,9 +9,10 @@ type metrics struct {
 	commits       prometheus.Counter
 	commitBytes   prometheus.Counter
 	commitSeconds prometheus.Histogram
+	journaled     prometheus.Counter
 }
 
-func newMetrics(reg prometheus.Registerer, db *badger.DB) *metrics {
+func newMetrics() *metrics {
 	m := &metrics{
 		commits: prometheus.NewCounter(prometheus.CounterOpts{
 			Name: "waymark_store_commits_total", Help: "Flush transactions committed to the store.",
@@ -23,12 +24,19 @@ func newMetrics(reg prometheus.Registerer, db *badger.DB) *metrics {
 			Name: "waymark_store_commit_seconds", Help: "Time to build and commit one flush transaction.",
 			Buckets: prometheus.ExponentialBuckets(0.0005, 2, 14),
 		}),
+		journaled: prometheus.NewCounter(prometheus.CounterOpts{
+			Name: "waymark_store_journaled_flushes_total", Help: "Flushes too large for one transaction, committed through the journal.",
+		}),
 	}
+	return m
+}
+
+// register registers the metrics with reg (nil: none).
+func (m *metrics) register(reg prometheus.Registerer, db *badger.DB) {
 	if reg != nil {
 		size := prometheus.NewGaugeFunc(prometheus.GaugeOpts{
 			Name: "waymark_store_size_bytes", Help: "On-disk size of the store (LSM tree and value log).",
 		}, func() float64 { l, v := db.Size(); return float64(l + v) })
-		reg.MustRegister(m.commits, m.commitBytes, m.commitSeconds, size)
+		reg.MustRegister(m.commits, m.commitBytes, m.commitSeconds, m.journaled, size)
 	}
-	return m
 }

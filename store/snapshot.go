@@ -23,9 +23,16 @@ func (s *Store) Backup(w io.Writer) error {
 // Restore loads a snapshot written by Backup into an empty store. The
 // snapshot's replica identity is dropped: the restored store is a new
 // replica with a durable consumer of its own.
-func (s *Store) Restore(ctx context.Context, r io.Reader) error {
+func (s *Store) Restore(ctx context.Context, r io.Reader) (err error) {
+	defer func() {
+		// Badger's Load panics on some malformed input ("slice bounds
+		// out of range"); a bad snapshot is an error, never a crash.
+		if p := recover(); p != nil {
+			err = fmt.Errorf("%w: snapshot: %v", ErrCorrupt, firstLine(fmt.Sprint(p)))
+		}
+	}()
 	empty := true
-	err := s.Scan(ctx, nil, func(key, _ []byte) error {
+	err = s.Scan(ctx, nil, func(key, _ []byte) error {
 		empty = false
 		return errStop
 	})
@@ -36,7 +43,7 @@ func (s *Store) Restore(ctx context.Context, r io.Reader) error {
 		return ErrNotEmpty
 	}
 	if err := s.db.Load(r, 256); err != nil {
-		return fmt.Errorf("restore: %w", err)
+		return fmt.Errorf("%w: restore: %v", ErrCorrupt, err)
 	}
 	return s.Commit(func(tx *Txn) error { return tx.Delete(replicaKey) })
 }

@@ -52,6 +52,7 @@ type serveFlags struct {
 	sync     bool
 	token    string
 	boot     bootstrapFlag
+	rebuild  bool
 	explore  float64
 	fresh    string
 	seed     uint64
@@ -109,6 +110,7 @@ func newServeFlags(name string, stderr io.Writer) *serveFlags {
 	fs.StringVar(&f.fresh, "fresh", d.Engine.Fresh, "`spec` of the fresh-item exploration model, e.g. fresh(window=48): items first seen within the window (hours) are new")
 	fs.Uint64Var(&f.seed, "explore-seed", 0, "seed of the exploration draws, which depend on it and the request id")
 	fs.Var(&f.boot, "bootstrap", "start an empty data folder from the newest snapshot in the NATS object store, or with --bootstrap=FILE from a file of 'waymark snapshot --out'")
+	fs.BoolVar(&f.rebuild, "rebuild-from-stream", false, "discard learned state that cannot continue from the events stream (checkpoint ahead of it, a gap, a re-created stream, a damaged store) and relearn the stream as it is now; consistent state is kept")
 	fs.StringVar(&f.debug, "debug-addr", "", "listen `address` for Go's pprof profiles (empty: off; keep it on loopback)")
 	fs.StringVar(&f.logLevel, "log-level", "info", "log `level`: debug, info, warn, error")
 	l := &f.limits
@@ -175,6 +177,7 @@ func (f *serveFlags) options(log *slog.Logger) (session.ServiceOptions, error) {
 	o.Token = f.token
 	o.Bootstrap, o.BootstrapFile = f.boot.on && f.boot.file == "", f.boot.file
 	o.Limits = f.limits
+	o.RebuildFromStream = f.rebuild
 	o.Logger = log
 	return o, nil
 }
