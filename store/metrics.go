@@ -1,7 +1,6 @@
 package store
 
 import (
-	"github.com/dgraph-io/badger/v4"
 	"github.com/prometheus/client_golang/prometheus"
 )
 
@@ -11,7 +10,7 @@ type metrics struct {
 	commitSeconds prometheus.Histogram
 }
 
-func newMetrics(reg prometheus.Registerer, db *badger.DB) *metrics {
+func newMetrics(reg prometheus.Registerer, s *Store) *metrics {
 	m := &metrics{
 		commits: prometheus.NewCounter(prometheus.CounterOpts{
 			Name: "waymark_store_commits_total", Help: "Flush transactions committed to the store.",
@@ -26,8 +25,8 @@ func newMetrics(reg prometheus.Registerer, db *badger.DB) *metrics {
 	}
 	if reg != nil {
 		size := prometheus.NewGaugeFunc(prometheus.GaugeOpts{
-			Name: "waymark_store_size_bytes", Help: "On-disk size of the store (LSM tree and value log).",
-		}, func() float64 { l, v := db.Size(); return float64(l + v) })
+			Name: "waymark_store_size_bytes", Help: "Bytes the store's files take on disk (allocated blocks, as du counts them).",
+		}, func() float64 { return float64(s.Size()) })
 		reg.MustRegister(m.commits, m.commitBytes, m.commitSeconds, size)
 	}
 	return m
