@@ -10,9 +10,10 @@ import (
 // limit (common practice: 1 GiB containers for a small service).
 const DefaultMemoryBudget = 1 << 30
 
-// MinMemoryBudget is the smallest budget [SizeFor] accepts: below it the
-// memtables shrink to where every flush needs several transactions.
-const MinMemoryBudget = 128 << 20
+// MinMemoryBudget is the smallest budget [SizeFor] accepts: its 8 MiB
+// memtable is the smallest whose transaction limit (15 %) still holds one
+// value at Badger's value threshold (1 MiB), which Badger requires.
+const MinMemoryBudget = 256 << 20
 
 // Sizing is how one process memory budget is split between Badger's parts
 // and the Go heap. Badger's defaults (five 64 MiB memtables at 1.3 times
@@ -65,18 +66,22 @@ type Sizing struct {
 // room for one largest batch (15 %) and its skiplist nodes (about 15 %).
 const arenaFactor = 1.3
 
-// SizeFor splits budget bytes. MemTableSize is a sixteenth of the budget
-// (64 MiB at 1 GiB, Badger's own default) up to 256 MiB; the mapped share
-// is what the memtables' logs and the level-0 tables may hold at once,
-// plus an eighth of the budget for the compacted tables; the Go heap gets
-// the rest.
+// SizeFor splits budget bytes. MemTableSize is a thirty-second of the
+// budget (32 MiB at 1 GiB) up to 256 MiB: a memtable costs about five times
+// its size at its peak (its arena, the next one's, and the table built from
+// it, whose blocks and their compressed copies Badger keeps in memory
+// until the table is written), and flushes on the state-memory load
+// average 2.7 MB, so 32 MiB still holds about ten of them. The mapped
+// share is what the memtables' logs and the level-0 tables may hold at
+// once, plus a quarter of the budget for the compacted tables; the Go heap
+// gets the rest.
 func SizeFor(budget int64) (Sizing, error) {
 	if budget < MinMemoryBudget {
 		return Sizing{}, fmt.Errorf("store: memory budget %s below the minimum %s", FormatBytes(budget), FormatBytes(MinMemoryBudget))
 	}
 	s := Sizing{
 		Budget:             budget,
-		MemTableSize:       min(budget/16, 256<<20),
+		MemTableSize:       min(budget/32, 256<<20),
 		NumMemtables:       2,
 		NumLevelZeroTables: 2,
 		NumCompactors:      2,
@@ -92,7 +97,7 @@ func SizeFor(budget int64) (Sizing, error) {
 func (s *Sizing) resolve() {
 	logs := int64(float64(s.NumMemtables) * arenaFactor * float64(s.MemTableSize))
 	l0 := int64(s.NumLevelZeroTables) * s.MemTableSize
-	s.Mapped = logs + l0 + s.Budget/8
+	s.Mapped = logs + l0 + s.Budget/4
 	s.GoMemLimit = s.Budget - s.Mapped
 }
 
