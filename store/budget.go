@@ -19,7 +19,7 @@ const MinMemoryBudget = 256 << 20
 // and the Go heap. Badger's defaults (five 64 MiB memtables at 1.3 times
 // their size, a 256 MiB block cache, a 2 GiB value-log mapping) and the
 // collector's default headroom (the heap may double before a collection)
-// took serve to 2.2 GiB of RSS on the state-memory load; the split below
+// took serve to 2.1 GiB of RSS on the state-memory load; the split below
 // keeps it under the budget (deploy/SCALING.md has the measurements).
 //
 // Resident memory has two kinds of pages. The Go heap (learned state,
