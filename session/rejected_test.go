@@ -51,8 +51,16 @@ waymark_events_rejected_total{kind="catalog"} 1
 waymark_events_rejected_total{kind="control"} 3
 waymark_events_rejected_total{kind="event"} 2
 `
-	if err := testutil.GatherAndCompare(s.reg, strings.NewReader(metric), "waymark_events_rejected_total"); err != nil {
-		t.Error(err)
+	// The counter moves after the stats (once the apply lock is
+	// released, beside the dead-letter publish): poll it.
+	for deadline := time.Now().Add(10 * time.Second); ; time.Sleep(20 * time.Millisecond) {
+		err := testutil.GatherAndCompare(s.reg, strings.NewReader(metric), "waymark_events_rejected_total")
+		if err == nil {
+			break
+		}
+		if time.Now().After(deadline) {
+			t.Fatal(err)
+		}
 	}
 	shutdown(t, s)
 
