@@ -189,7 +189,9 @@ type Engine struct {
 
 	// Readable from any goroutine.
 	applied    atomic.Uint64
-	rejected   atomic.Uint64
+	rejected   atomic.Uint64 // click events
+	rejCatalog atomic.Uint64
+	rejControl atomic.Uint64
 	lastSeq    atomic.Uint64
 	streamLast atomic.Uint64
 	loaded     atomic.Bool
@@ -257,6 +259,8 @@ func (e *Engine) ResumeSeq() uint64 { return e.lastSeq.Load() + 1 }
 func (e *Engine) publishCounters() {
 	e.applied.Store(e.cp.Applied)
 	e.rejected.Store(e.cp.Rejected)
+	e.rejCatalog.Store(e.cp.RejectedCatalog)
+	e.rejControl.Store(e.cp.RejectedControl)
 	e.lastSeq.Store(e.cp.Seq)
 }
 
@@ -286,8 +290,18 @@ func (e *Engine) Handle(ctx context.Context, msgs []stream.Msg) error {
 type rejection struct {
 	data   []byte
 	seq    uint64
+	kind   string // rejectEvent, rejectCatalog or rejectControl
 	reason string
 }
+
+// The kinds of rejected messages, the label values of
+// waymark_events_rejected_total: a bad catalogue feed or operator tool is
+// not a bad click producer, and each has its own counter.
+const (
+	rejectEvent   = "event"
+	rejectCatalog = "catalog"
+	rejectControl = "control"
+)
 
 func (e *Engine) applyLocked(ctx context.Context, msgs []stream.Msg) {
 	var rejects []rejection
@@ -300,8 +314,18 @@ func (e *Engine) applyLocked(ctx context.Context, msgs []stream.Msg) {
 			continue
 		}
 		if err := e.applyOneLocked(m); err != nil {
-			e.cp.Rejected++
-			rejects = append(rejects, rejection{m.Data, m.Seq, err.Error()})
+			kind := rejectEvent
+			switch m.Subject {
+			case e.opts.ControlSubject:
+				kind = rejectControl
+				e.cp.RejectedControl++
+			case e.opts.CatalogSubject:
+				kind = rejectCatalog
+				e.cp.RejectedCatalog++
+			default:
+				e.cp.Rejected++
+			}
+			rejects = append(rejects, rejection{m.Data, m.Seq, kind, err.Error()})
 		}
 		e.cp.Seq = m.Seq
 		e.pending++
@@ -317,8 +341,8 @@ func (e *Engine) applyLocked(ctx context.Context, msgs []stream.Msg) {
 	e.mu.Unlock()
 	e.publishCounters()
 	for _, r := range rejects {
-		e.met.rejected.Inc()
-		e.log.Debug("event rejected", "seq", r.seq, "reason", r.reason)
+		e.met.rejected.WithLabelValues(r.kind).Inc()
+		e.log.Debug("message rejected", "kind", r.kind, "seq", r.seq, "reason", r.reason)
 		if e.dlq != nil {
 			if err := e.dlq.DeadLetter(ctx, r.data, r.seq, r.reason); err != nil {
 				e.log.Warn("dead-letter publish failed", "seq", r.seq, "err", err)
@@ -569,6 +593,11 @@ type Stats struct {
 	// Blend is the learned blend's state (chosen mixture, weights, the
 	// pool's recent scores); absent for a blend with fixed weights.
 	Blend *models.LearnedStats `json:"blend,omitempty"`
+
+	// CatalogRejected and ControlRejected count rejected catalogue
+	// records and control messages, apart from click events.
+	CatalogRejected uint64 `json:"catalog_rejected"`
+	ControlRejected uint64 `json:"control_rejected"`
 }
 
 // Stats returns the engine's counters.
@@ -598,6 +627,7 @@ func (e *Engine) Stats() Stats {
 		Models:         keys,
 		Blend:          learned,
 	}
+	s.CatalogRejected, s.ControlRejected = e.rejCatalog.Load(), e.rejControl.Load()
 	if wm > 0 {
 		s.Watermark = time.UnixMilli(wm).UTC().Format(time.RFC3339Nano)
 	}

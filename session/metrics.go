@@ -10,7 +10,7 @@ import (
 // still count, unregistered.
 type metrics struct {
 	applied      prometheus.Counter
-	rejected     prometheus.Counter
+	rejected     *prometheus.CounterVec // by kind: event, catalog, control
 	skipped      prometheus.Counter
 	flushSeconds prometheus.Histogram
 	flushBytes   prometheus.Histogram
@@ -23,9 +23,9 @@ func newMetrics(reg prometheus.Registerer, e *Engine) *metrics {
 		applied: prometheus.NewCounter(prometheus.CounterOpts{
 			Name: "waymark_events_applied_total", Help: "Click events applied to the models by this process.",
 		}),
-		rejected: prometheus.NewCounter(prometheus.CounterOpts{
-			Name: "waymark_events_rejected_total", Help: "Bus messages rejected as invalid and dead-lettered.",
-		}),
+		rejected: prometheus.NewCounterVec(prometheus.CounterOpts{
+			Name: "waymark_events_rejected_total", Help: "Bus messages rejected as invalid and dead-lettered, by kind: click events, catalogue records, control messages.",
+		}, []string{"kind"}),
 		skipped: prometheus.NewCounter(prometheus.CounterOpts{
 			Name: "waymark_events_redelivered_total", Help: "Redelivered bus messages skipped because the store already holds them.",
 		}),
@@ -44,6 +44,9 @@ func newMetrics(reg prometheus.Registerer, e *Engine) *metrics {
 			Name: "waymark_query_seconds", Help: "Time to answer a query inside the engine, by endpoint and answering source.",
 			Buckets: prometheus.ExponentialBuckets(0.00001, 2, 16),
 		}, []string{"endpoint", "source"}),
+	}
+	for _, k := range []string{rejectEvent, rejectCatalog, rejectControl} {
+		m.rejected.WithLabelValues(k) // every kind shows, at 0, from the start
 	}
 	if reg == nil {
 		return m

@@ -147,14 +147,14 @@ func Open(ctx context.Context, opts ServiceOptions) (_ *Service, err error) {
 	if opts.Logger == nil {
 		opts.Logger = slog.New(slog.DiscardHandler)
 	}
+	sz, err := opts.Store.Sizing()
+	if err != nil {
+		return nil, fmt.Errorf("%w: %w", ErrBadOption, err)
+	}
 	if opts.Engine.FlushBytes == 0 {
 		// The estimate runs above the bytes written; 10 % of the memtable
 		// keeps a flush well inside Badger's transaction limit (15 %).
-		mt := opts.Store.MemTableSize
-		if mt == 0 {
-			mt = store.DefaultOptions().MemTableSize
-		}
-		opts.Engine.FlushBytes = int(min(int64(DefaultEngineOptions().FlushBytes), mt/10))
+		opts.Engine.FlushBytes = int(min(int64(DefaultEngineOptions().FlushBytes), sz.MemTableSize/10))
 	}
 	if lim := opts.MaxAckPending / (commitsInFlight + 1); opts.Engine.FlushEvents == 0 || opts.Engine.FlushEvents > lim {
 		// Acks wait for commits, and up to commitsInFlight flushes wait
@@ -177,6 +177,9 @@ func Open(ctx context.Context, opts ServiceOptions) (_ *Service, err error) {
 		}
 	}()
 	s.reg.MustRegister(collectors.NewGoCollector(), collectors.NewProcessCollector(collectors.ProcessCollectorOpts{}),
+		prometheus.NewGaugeFunc(prometheus.GaugeOpts{
+			Name: "waymark_memory_budget_bytes", Help: "The memory budget the store and the Go heap are sized to (--memory-budget).",
+		}, func() float64 { return float64(sz.Budget) }),
 		prometheus.NewGaugeFunc(prometheus.GaugeOpts{
 			Name: "waymark_ready", Help: "1 when /readyz answers ready: state loaded, consumer running, lag under the threshold.",
 		}, func() float64 {

@@ -190,7 +190,7 @@ func TestServiceEndToEnd(t *testing.T) {
 	}
 	metrics, _ := io.ReadAll(resp.Body)
 	resp.Body.Close()
-	for _, want := range []string{"waymark_events_applied_total 172", "waymark_events_rejected_total 2", "waymark_query_seconds_bucket", "waymark_consumer_lag_messages"} {
+	for _, want := range []string{"waymark_events_applied_total 172", `waymark_events_rejected_total{kind="event"} 2`, "waymark_query_seconds_bucket", "waymark_consumer_lag_messages"} {
 		if !bytes.Contains(metrics, []byte(want)) {
 			t.Errorf("/metrics lacks %q", want)
 		}

@@ -12,8 +12,14 @@ type Checkpoint struct {
 	// Seq is the last applied stream sequence; the consumer resumes at Seq+1.
 	Seq uint64 `json:"seq"`
 	// Applied and Rejected count events since the store was created.
+	// Rejected counts click events only; stores written before catalogue
+	// and control messages were counted apart include those in it.
 	Applied  uint64 `json:"applied"`
 	Rejected uint64 `json:"rejected"`
+	// RejectedCatalog and RejectedControl count rejected catalogue records
+	// and control messages.
+	RejectedCatalog uint64 `json:"rejected_catalog,omitempty"`
+	RejectedControl uint64 `json:"rejected_control,omitempty"`
 	// Catalog counts applied catalogue records.
 	Catalog uint64 `json:"catalog,omitempty"`
 	// Overflow counts events and records on new items that arrived while

@@ -1,7 +1,6 @@
 package store
 
 import (
-	"github.com/dgraph-io/badger/v4"
 	"github.com/prometheus/client_golang/prometheus"
 )
 
@@ -32,11 +31,11 @@ func newMetrics() *metrics {
 }
 
 // register registers the metrics with reg (nil: none).
-func (m *metrics) register(reg prometheus.Registerer, db *badger.DB) {
+func (m *metrics) register(reg prometheus.Registerer, s *Store) {
 	if reg != nil {
 		size := prometheus.NewGaugeFunc(prometheus.GaugeOpts{
-			Name: "waymark_store_size_bytes", Help: "On-disk size of the store (LSM tree and value log).",
-		}, func() float64 { l, v := db.Size(); return float64(l + v) })
+			Name: "waymark_store_size_bytes", Help: "Bytes the store's files take on disk (allocated blocks, as du counts them).",
+		}, func() float64 { return float64(s.Size()) })
 		reg.MustRegister(m.commits, m.commitBytes, m.commitSeconds, m.journaled, size)
 	}
 }

@@ -17,8 +17,13 @@ import (
 
 // Options configures [Open].
 type Options struct {
-	// MemTableSize bounds one Badger memtable, and so the largest flush
-	// that fits one transaction (about 15 % of it). Default 256 MiB.
+	// MemoryBudget is the whole process's memory budget in bytes (default
+	// 1 GiB); [SizeFor] splits it between Badger's memtables, caches and
+	// mapped files and the Go heap.
+	MemoryBudget int64
+	// MemTableSize, when set, overrides the budget's memtable size, which
+	// bounds the largest flush that fits one transaction (about 15 % of
+	// it). Deprecated: set MemoryBudget.
 	MemTableSize int64
 	// SyncWrites fsyncs every commit (see the package doc).
 	SyncWrites bool
@@ -34,20 +39,14 @@ type Options struct {
 
 // DefaultOptions returns the options serve uses.
 func DefaultOptions() Options {
-	return Options{MemTableSize: 256 << 20}
+	return Options{MemoryBudget: DefaultMemoryBudget}
 }
 
-func (o *Options) validate() error {
-	if o.MemTableSize == 0 {
-		o.MemTableSize = DefaultOptions().MemTableSize
-	}
-	if o.MemTableSize < 1<<20 {
-		return fmt.Errorf("store: MemTableSize %d below 1 MiB", o.MemTableSize)
-	}
+func (o *Options) validate() (Sizing, error) {
 	if o.Logger == nil {
 		o.Logger = slog.New(slog.DiscardHandler)
 	}
-	return nil
+	return o.Sizing()
 }
 
 // Store is waymark's Badger database.
@@ -69,12 +68,19 @@ func (s *Store) hook(stage string) error {
 
 // Open opens or creates the store in dir.
 func Open(ctx context.Context, dir string, opts Options) (*Store, error) {
-	if err := opts.validate(); err != nil {
+	sz, err := opts.validate()
+	if err != nil {
 		return nil, err
 	}
 	bo := badger.DefaultOptions(dir).
 		WithLogger(badgerLogger{opts.Logger}).
-		WithMemTableSize(opts.MemTableSize).
+		WithMemTableSize(sz.MemTableSize).
+		WithNumMemtables(sz.NumMemtables).
+		WithNumLevelZeroTables(sz.NumLevelZeroTables).
+		WithNumCompactors(sz.NumCompactors).
+		WithBlockCacheSize(sz.BlockCacheSize).
+		WithIndexCacheSize(sz.IndexCacheSize).
+		WithValueLogFileSize(sz.ValueLogFileSize).
 		WithSyncWrites(opts.SyncWrites).
 		WithNumVersionsToKeep(1).
 		WithDetectConflicts(false)
@@ -104,7 +110,7 @@ func Open(ctx context.Context, dir string, opts Options) (*Store, error) {
 		return nil, fmt.Errorf("open store %s: %w", dir, err)
 	}
 	// Registered only once the store opened, so a caller may try again.
-	s.metrics.register(opts.Registerer, db)
+	s.metrics.register(opts.Registerer, s)
 	return s, nil
 }
 
@@ -276,10 +282,21 @@ func (s *Store) Wipe() error {
 	return nil
 }
 
-// Size returns the on-disk size of the LSM tree and value log in bytes.
+// Size returns the bytes the store's folder takes on disk: the blocks
+// allocated to its files, as du counts them. Badger's own DB.Size counts
+// the value log at its reserved length (twice ValueLogFileSize, 2 GiB at
+// its default, for a log that holds almost nothing) and is refreshed only
+// once a minute.
 func (s *Store) Size() int64 {
-	lsm, vlog := s.db.Size()
-	return lsm + vlog
+	if s.dir == "" {
+		lsm, vlog := s.db.Size()
+		return lsm + vlog
+	}
+	n, err := diskUsage(s.dir)
+	if err != nil {
+		s.log.Debug("store size", "err", err)
+	}
+	return n
 }
 
 type badgerLogger struct{ l *slog.Logger }

@@ -9,7 +9,10 @@
 // p50, p99, max and errors as the client saw them, and the p99 bucket of
 // the service's own waymark_query_seconds histogram, which leaves out HTTP
 // and the client), and prints one row; at the end it prints a verdict on
-// memory, client p99 against a target and errors.
+// memory, client p99 against a target and errors. Memory is judged by the
+// process's peak resident set (/proc/PID/status VmHWM, read just before
+// the stop, so no spike between samples escapes) against serve's memory
+// budget (waymark_memory_budget_bytes, --memory-budget): over it fails.
 //
 // Everything stops by itself: the load after --duration, the service
 // right after it. Only loopback addresses are used.
@@ -299,7 +302,8 @@ func run(c config) (bool, error) {
 
 	// The sampler.
 	var samples []sample
-	_, prevBuckets, _ := scrape(hc, s.HTTP+"/metrics")
+	m0, prevBuckets, _ := scrape(hc, s.HTTP+"/metrics")
+	budget := m0["waymark_memory_budget_bytes"]
 	fmt.Printf("%7s %10s %10s %7s %8s %8s %8s %9s %6s %9s %9s %9s %6s %9s %7s\n",
 		"t", "applied", "published", "q/s", "p50 ms", "p99 ms", "max ms", "srv p99≤", "errors", "RSS MiB", "anon MiB", "heap MiB", "gorout", "sessions", "lag")
 	start := time.Now()
@@ -357,12 +361,16 @@ func run(c config) (bool, error) {
 		}
 		time.Sleep(100 * time.Millisecond)
 	}
+	peak := float64(procStatus(s.Cmd.Process.Pid, "VmHWM")[0])
 	stopErr := s.Stop(60 * time.Second)
 	stopped = true
-	return verdict(c, samples, pub, final, pubErrs.Load(), stopErr), nil
+	return verdict(c, samples, pub, final, pubErrs.Load(), stopErr, peak, budget), nil
 }
 
-func verdict(c config, samples []sample, pub uint64, final svc.Stats, pubErrs int64, stopErr error) bool {
+// verdict prints the summary and judges the run. peak is the process's
+// peak resident set and budget its memory budget, in bytes (budget 0: the
+// binary exports none, so there is nothing to judge against).
+func verdict(c config, samples []sample, pub uint64, final svc.Stats, pubErrs int64, stopErr error, peak, budget float64) bool {
 	ok := true
 	var queries, errs int
 	var worst, worstSrv time.Duration
@@ -402,6 +410,18 @@ func verdict(c config, samples []sample, pub uint64, final svc.Stats, pubErrs in
 		queries, errs, ms(worst), c.targetP99, over, len(samples), ms(worstSrv), pub, pubErrs, final.Applied, final.Rejected)
 	fmt.Printf("summary: RSS max %.1f MiB, mean %.1f MiB in the second third, %.1f MiB in the last; anonymous max %.1f MiB, mean %.1f → %.1f MiB; Go heap max %.1f MiB, mean %.1f → %.1f MiB\n",
 		rssMax, rMid, rEnd, anonMax, aMid, aEnd, heapMax, hMid, hEnd)
+	switch {
+	case peak == 0:
+		fmt.Println("summary: peak RSS unknown (no /proc)")
+	case budget == 0:
+		fmt.Printf("summary: peak RSS %.1f MiB; the binary reports no memory budget\n", peak/(1<<20))
+	default:
+		fmt.Printf("summary: peak RSS %.1f MiB against the memory budget of %.0f MiB (%.0f %%)\n", peak/(1<<20), budget/(1<<20), 100*peak/budget)
+		if peak > budget {
+			fmt.Printf("FAIL: peak RSS %.1f MiB is above the memory budget of %.0f MiB\n", peak/(1<<20), budget/(1<<20))
+			ok = false
+		}
+	}
 	if errs > 0 || pubErrs > 0 {
 		fmt.Println("FAIL: errors during the soak")
 		ok = false

@@ -668,7 +668,7 @@ var promWords = map[string]bool{
 	"rate": true, "irate": true, "increase": true, "deriv": true, "changes": true, "delta": true,
 	"histogram_quantile": true, "clamp_min": true, "abs": true, "and": true, "or": true, "unless": true,
 	"on": true, "ignoring": true, "bool": true, "offset": true, "label_values": true,
-	"le": true, "instance": true, "job": true, "endpoint": true, "source": true, "code": true, "route": true,
+	"le": true, "instance": true, "job": true, "endpoint": true, "source": true, "code": true, "route": true, "kind": true,
 }
 
 var (

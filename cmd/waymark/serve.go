@@ -11,6 +11,7 @@ import (
 	"net/http"
 	"net/http/pprof"
 	"os"
+	"runtime/debug"
 	"strconv"
 	"strings"
 	"time"
@@ -18,6 +19,7 @@ import (
 	"waymark/cmd/waymark/internal/flagconf"
 	"waymark/models"
 	"waymark/session"
+	"waymark/store"
 )
 
 // serveFlags holds serve's flags; the demo reuses them.
@@ -36,6 +38,7 @@ type serveFlags struct {
 	replicas int
 	maxAge   time.Duration
 	maxBytes int64
+	budget   byteSize
 	memtable int64
 	blend    string
 	models   string
@@ -78,7 +81,9 @@ func newServeFlags(name string, stderr io.Writer) *serveFlags {
 	fs.IntVar(&f.replicas, "stream-replicas", d.Bus.Replicas, "replicas of the JetStream streams (3 on a three-node cluster)")
 	fs.DurationVar(&f.maxAge, "stream-max-age", 0, "retention of the events stream: drop messages older than this (0: keep; snapshots must cover what is dropped)")
 	fs.Int64Var(&f.maxBytes, "stream-max-bytes", 0, "retention of the events stream in bytes (0: no limit)")
-	fs.Int64Var(&f.memtable, "store-memtable-mib", d.Store.MemTableSize>>20, "Badger memtable size in MiB: memory use against the largest flush that fits one transaction")
+	f.budget = byteSize(d.Store.MemoryBudget)
+	fs.Var(&f.budget, "memory-budget", "memory `size` the process keeps under (e.g. 1GiB, 512MiB): sizes the store's memtables, caches and mapped files and the Go heap's limit (GOMEMLIMIT, when not set in the environment); learned state grows with items and tracked sessions within it, see deploy/SCALING.md")
+	fs.Int64Var(&f.memtable, "store-memtable-mib", 0, "deprecated: use --memory-budget, which sizes the memtable (0: from the budget)")
 	fs.StringVar(&f.dlq, "dead-letter-subject", d.Bus.DeadLetterSubject, "`subject` rejected messages are copied to")
 	fs.StringVar(&f.blend, "blend", models.DefaultBlendSpec, "blend `spec` that answers queries (see \"models\" above)")
 	fs.StringVar(&f.models, "models", "", "extra model `specs` to learn, comma-separated")
@@ -156,7 +161,10 @@ func (f *serveFlags) options(log *slog.Logger) (session.ServiceOptions, error) {
 	o.Bus.Stream, o.Bus.Subject, o.Bus.CatalogSubject, o.Bus.DeadLetterSubject = f.stream, f.subject, f.catalog, f.dlq
 	o.Bus.Name = "waymark-serve"
 	o.Bus.Replicas, o.Bus.MaxAge, o.Bus.MaxBytes = f.replicas, f.maxAge, f.maxBytes
-	o.Store.MemTableSize = f.memtable << 20
+	o.Store.MemoryBudget, o.Store.MemTableSize = int64(f.budget), f.memtable<<20
+	if _, err := o.Store.Sizing(); err != nil {
+		return o, fmt.Errorf("--memory-budget: %w", err)
+	}
 	o.Engine.Blend = f.blend
 	o.Engine.ExploreShare, o.Engine.ExploreSeed, o.Engine.Fresh = f.explore, f.seed, f.fresh
 	o.Engine.FlushInterval, o.Engine.FlushEvents = f.flushInt, f.flushEv
@@ -203,6 +211,10 @@ func runServe(ctx context.Context, args []string, stdout, stderr io.Writer) int 
 	}
 	eff, _ := json.Marshal(flagconf.Effective(f.fs, append(append([]string{"auth-token"}, busSecretFlags...), listenSecretFlags...)...))
 	log.Info("effective config", "config", string(eff))
+	if f.memtable != 0 {
+		log.Warn("--store-memtable-mib is deprecated: --memory-budget sizes the memtable")
+	}
+	applyMemoryBudget(log, opts.Store)
 	if f.debug != "" {
 		go func() {
 			mux := http.NewServeMux()
@@ -320,3 +332,40 @@ func (b *bootstrapFlag) Set(v string) error {
 }
 
 func (b *bootstrapFlag) IsBoolFlag() bool { return true }
+
+// byteSize is a flag.Value of a size in bytes with an optional unit.
+type byteSize int64
+
+func (b *byteSize) String() string { return store.FormatBytes(int64(*b)) }
+
+func (b *byteSize) Set(s string) error {
+	n, err := store.ParseBytes(s)
+	if err != nil {
+		return err
+	}
+	*b = byteSize(n)
+	return nil
+}
+
+// applyMemoryBudget sets the Go runtime's soft memory limit to the budget's
+// heap share, so the collector works harder as the heap nears it instead of
+// letting it double between collections. A GOMEMLIMIT in the environment is
+// the operator's explicit choice and wins. The limit is process-wide, so
+// serve sets it here rather than session.Open, which tests run several of.
+func applyMemoryBudget(log *slog.Logger, so store.Options) {
+	sz, err := so.Sizing()
+	if err != nil {
+		return // options() has refused it already
+	}
+	limit := sz.GoMemLimit
+	if env := os.Getenv("GOMEMLIMIT"); env != "" {
+		limit = debug.SetMemoryLimit(-1)
+		log.Info("GOMEMLIMIT from the environment wins over the memory budget's heap share", "GOMEMLIMIT", env, "budget_heap", store.FormatBytes(sz.GoMemLimit))
+	} else {
+		debug.SetMemoryLimit(limit)
+	}
+	log.Info("memory budget", "budget", store.FormatBytes(sz.Budget), "go_mem_limit", limit,
+		"memtable", store.FormatBytes(sz.MemTableSize), "memtables", sz.NumMemtables,
+		"block_cache", store.FormatBytes(sz.BlockCacheSize), "index_cache", store.FormatBytes(sz.IndexCacheSize),
+		"mapped_share", sz.Mapped)
+}
