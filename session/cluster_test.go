@@ -131,7 +131,7 @@ func TestScaleOutOnACluster(t *testing.T) {
 	purgeThrough(t, a, snap.Seq)
 	c := newTestService(t, t.TempDir(), onCluster, func(o *ServiceOptions) { o.Bootstrap = true })
 	defer shutdown(t, c)
-	waitFor(t, "the bootstrapped replica reaches the stream's end", 30*time.Second, func() bool { return c.Engine().Stats().LastSequence == snap.Seq+1 })
+	waitFor(t, "the bootstrapped replica reaches the stream's end", 90*time.Second, func() bool { return c.Engine().Stats().LastSequence == snap.Seq+1 })
 	if got := c.Engine().Stats().EventsApplied; got != 192 {
 		t.Fatalf("the bootstrapped replica applied %d events, want 192 (191 from the snapshot, 1 replayed)", got)
 	}

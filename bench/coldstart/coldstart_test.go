@@ -158,7 +158,7 @@ func TestReadPriors(t *testing.T) {
 		{"map drops unmapped", importOptions{mapFile: mf, unmapped: "drop", weight: 0.5}, 1, 3, "x1:x2=0.5"},
 		{"map keeps unmapped", importOptions{mapFile: mf, unmapped: "keep", weight: 0.5}, 4, 0, "x1:x2=0.5,C=0.25"},
 		{"one model", importOptions{mapFile: mf, unmapped: "keep", weight: 1, models: "markov"}, 1, 0, "x1:C=1"},
-		{"no map", importOptions{unmapped: "drop", weight: 2}, 4, 0, "A:B=2,C=1"},
+		{"no map", importOptions{unmapped: "drop", weight: 1}, 4, 0, "A:B=1,C=0.5"},
 	}
 	for _, c := range cases {
 		t.Run(c.name, func(t *testing.T) {

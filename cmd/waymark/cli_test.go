@@ -95,11 +95,12 @@ func TestServeHelpListsModels(t *testing.T) {
 			t.Errorf("model %q not listed", name)
 		}
 	}
-	// The default's parts: models/set.go (markov, sr, iknn at 1),
-	// models/set_coldstart.go (content, prior at 1), models/blend.go
-	// (DefaultPopWeight 0.1).
-	if want := "blend(markov=1,sr=1,iknn=1,content=1,prior=1,pop=0.1)"; !strings.Contains(out, want) {
-		t.Errorf("default blend %s not shown", want)
+	// The default is the learned blend (models/blendlearn.go): its name and
+	// the signals its pool mixes must be on the page.
+	for _, want := range []string{"blend(learned=1)", "learns its mixture", "vstan", "content and prior keep weight 1"} {
+		if !strings.Contains(out, want) {
+			t.Errorf("serve --help does not say %q about the default blend", want)
+		}
 	}
 }
 

@@ -97,9 +97,10 @@ func demo(ctx context.Context, out, stderr io.Writer, keep bool, httpAddr, natsA
 		}
 		path = append(path, res.Items[0].Item)
 	}
-	fmt.Fprintln(out, "Each feature is one signal's score divided by its best for this query (0 to 1); the score is\n"+
-		"their weighted sum (weight 1 each, pop 0.1, content's weight shrinking as items gather clicks),\n"+
-		"so at most about 5.1 here: it ranks items within one answer, it is not a probability.")
+	fmt.Fprintln(out, "Each feature is one signal's score divided by its best for this query (0 to 1); the score\n"+
+		"combines them with the weights of the mixture the default blend learned from these clicks\n"+
+		"(content's weight shrinking as items gather clicks): it ranks items within one answer, it is\n"+
+		"not a probability.")
 	fmt.Fprintln(out)
 	var fresh session.NextResult
 	if err := c.get("/v1/sessions/first-time-visitor/next?k=5", &fresh); err != nil {

@@ -269,10 +269,13 @@ models (--blend answers queries; --models learns more specs beside it; replay ta
 		fmt.Fprintf(&b, "  %-30s %s\n", m.spec, m.what)
 	}
 	fmt.Fprintf(&b, `
-The default --blend %q is %s:
-each signal's scores divided by its best, summed with the weights; content backs off as
-items gather clicks. An explicit blend(...) uses only the parts it names (and pop=%g
-unless it gives pop): blend(markov=1,sr=1,iknn=1) has no content or prior signal.
+The default --blend %q is %s: it learns its mixture from the stream. On a
+sample of the clicks it learns, it scores a pool of mixtures of markov, sr, iknn, vsknn,
+vstan and pop (each alone among them) by the reciprocal rank of the clicked item, decayed in
+event time, and answers with the best; content and prior keep weight 1 in every mixture, and
+content backs off as items gather clicks. /v1/stats shows the mixture in use. An explicit
+blend(...) keeps fixed weights and uses only the parts it names (and pop=%g unless it gives
+pop): blend(markov=1,sr=1,iknn=1) has no content or prior signal.
 
 flags:
 `, models.DefaultBlendSpec, defaultBlendName(), models.DefaultPopWeight)
