@@ -81,9 +81,21 @@ func bucketMS(b int) float64 {
 	return float64(latBase) * math.Pow(10, float64(b)/20) / float64(time.Millisecond)
 }
 
+// counters are the engine figures a sample reads: lock-free atomics, so a
+// sample taken inside a request costs no engine lock and no store walk
+// (Stats would size the store on disk).
+type counters struct {
+	applied, rejected, lag uint64
+}
+
+// counters reads the figures the operator page's history samples.
+func (e *Engine) counters() counters {
+	return counters{applied: e.applied.Load(), rejected: e.rejected.Load(), lag: e.Lag()}
+}
+
 // maybeSample takes a sample when one is due (or always, with force),
-// reading the engine's counters through stats.
-func (h *history) maybeSample(stats func() Stats, force bool) {
+// reading the engine's counters through read.
+func (h *history) maybeSample(read func() counters, force bool) {
 	now := h.now()
 	due := h.next.Load()
 	if !force && now.UnixNano() < due {
@@ -100,26 +112,26 @@ func (h *history) maybeSample(stats func() Stats, force bool) {
 		return
 	}
 	h.next.Store(now.Add(h.interval).UnixNano())
-	st := stats()
+	st := read()
 	var counts [latBuckets]uint64
 	var n uint64
 	for i := range h.lat {
 		counts[i] = h.lat[i].Swap(0)
 		n += counts[i]
 	}
-	s := sample{At: now, Lag: float64(st.Lag), Queries: float64(n)}
+	s := sample{At: now, Lag: float64(st.lag), Queries: float64(n)}
 	if n > 0 {
 		s.P50, s.P99 = quantileMS(&counts, n, 0.50), quantileMS(&counts, n, 0.99)
 	}
 	if h.primed {
-		if secs := now.Sub(h.last).Seconds(); secs > 0 && st.EventsApplied >= h.applied {
-			s.Ingest = float64(st.EventsApplied-h.applied) / secs
+		if secs := now.Sub(h.last).Seconds(); secs > 0 && st.applied >= h.applied {
+			s.Ingest = float64(st.applied-h.applied) / secs
 		}
-		if st.EventsRejected >= h.rejected {
-			s.Rejected = float64(st.EventsRejected - h.rejected)
+		if st.rejected >= h.rejected {
+			s.Rejected = float64(st.rejected - h.rejected)
 		}
 	}
-	h.last, h.applied, h.rejected, h.primed = now, st.EventsApplied, st.EventsRejected, true
+	h.last, h.applied, h.rejected, h.primed = now, st.applied, st.rejected, true
 	if len(h.samples) < historyLen {
 		h.samples = append(h.samples, s)
 		return

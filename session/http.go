@@ -152,7 +152,7 @@ func (s *Server) route(pattern string, h http.HandlerFunc) {
 			if query {
 				s.hist.observe(time.Since(start))
 			}
-			s.hist.maybeSample(s.eng.Stats, false)
+			s.hist.maybeSample(s.eng.counters, false)
 			if p := recover(); p != nil {
 				s.opts.Logger.Error("handler panic", "route", pattern, "panic", fmt.Sprint(p))
 				writeError(sw, http.StatusInternalServerError, CodeInternal, "internal error")

@@ -169,7 +169,7 @@ func (s *Server) page(w http.ResponseWriter, r *http.Request) {
 	}
 	v.ExploreSignals = len(v.Signals) + 1
 	v.Labels = s.eng.Labels(v.itemNames())
-	s.hist.maybeSample(s.eng.Stats, true)
+	s.hist.maybeSample(s.eng.counters, true)
 	v.Charts = historyCharts(s.hist.snapshot())
 
 	// Render to a buffer first so a template failure is a clean 500, not

@@ -96,7 +96,7 @@ func TestHistory(t *testing.T) {
 	now := time.Date(2026, 12, 4, 12, 0, 0, 0, time.UTC)
 	h := newHistory(5*time.Second, func() time.Time { return now })
 	var st Stats
-	stats := func() Stats { return st }
+	stats := func() counters { return counters{applied: st.EventsApplied, rejected: st.EventsRejected, lag: st.Lag} }
 	h.maybeSample(stats, true) // primes the counters
 	for i := range 100 {
 		h.observe(time.Duration(i+1) * 100 * time.Microsecond) // 0.1 .. 10 ms

@@ -10,12 +10,10 @@ import (
 	"math/rand/v2"
 	"os"
 	"path/filepath"
-	"slices"
 	"strconv"
 	"strings"
 	"time"
 
-	"waymark/bench/synth"
 	"waymark/store"
 	"waymark/stream"
 )
@@ -183,18 +181,7 @@ func floodRun(ctx context.Context, c config) error {
 func damageRun(ctx context.Context, c config, name string) error {
 	damage := damageCases[name]
 	n := uint64(c.events)
-	evs := synth.Generate(synth.Options{Events: c.events, Items: c.items, Seed: c.seed, Concurrent: 200})
-	lines := make([][]byte, len(evs))
-	set := map[string]bool{}
-	for i := range evs {
-		lines[i] = evs[i].AppendJSON(nil)
-		set[evs[i].Item] = true
-	}
-	names := make([]string, 0, len(set))
-	for it := range set {
-		names = append(names, it)
-	}
-	slices.Sort(names)
+	evs, lines, names := generated(c)
 	probe := scoreProbe(evs, c.scores, c.seed)
 	fmt.Printf("%s: %d events, %d items\n", name, n, len(names))
 	fmt.Printf("%s: promised: refuse with a one-line error, or rebuild from the stream and say so; never a panic, never wrong answers\n", name)

@@ -170,38 +170,10 @@ func runCases(ctx context.Context, c config) (err error) {
 	return nil
 }
 
+// run is the kills case; the case runner has made c.dir and c.bin.
 func run(ctx context.Context, c config) (err error) {
-	if c.dir == "" {
-		if c.dir, err = os.MkdirTemp("", "crashloop-"); err != nil {
-			return err
-		}
-	}
-	if err := os.MkdirAll(c.dir, 0o755); err != nil {
-		return err
-	}
-	if !c.keep {
-		defer os.RemoveAll(c.dir)
-	}
-	if c.bin == "" {
-		c.bin = filepath.Join(c.dir, "waymark")
-		out, err := exec.CommandContext(ctx, "go", "build", "-o", c.bin, "./cmd/waymark").CombinedOutput()
-		if err != nil {
-			return fmt.Errorf("go build: %v: %s", err, out)
-		}
-	}
 	start := time.Now()
-	evs := synth.Generate(synth.Options{Events: c.events, Items: c.items, Seed: c.seed, Concurrent: 200})
-	lines := make([][]byte, len(evs))
-	items := map[string]bool{}
-	for i := range evs {
-		lines[i] = evs[i].AppendJSON(nil)
-		items[evs[i].Item] = true
-	}
-	names := make([]string, 0, len(items))
-	for it := range items {
-		names = append(names, it)
-	}
-	slices.Sort(names)
+	evs, lines, names := generated(c)
 	fmt.Printf("crashloop: %d events, %d items, %d kills, seed %d, binary %s\n", len(evs), len(names), c.kills, c.seed, c.bin)
 	probe := scoreProbe(evs, c.scores, c.seed)
 
@@ -766,4 +738,22 @@ func (s *sender) wait(ctx context.Context) error {
 		s.kill()
 		return ctx.Err()
 	}
+}
+
+// generated is the synthetic stream of c: its events, each as a JSON line,
+// and its distinct items in order.
+func generated(c config) (evs []stream.Event, lines [][]byte, names []string) {
+	evs = synth.Generate(synth.Options{Events: c.events, Items: c.items, Seed: c.seed, Concurrent: 200})
+	lines = make([][]byte, len(evs))
+	set := map[string]bool{}
+	for i := range evs {
+		lines[i] = evs[i].AppendJSON(nil)
+		set[evs[i].Item] = true
+	}
+	names = make([]string, 0, len(set))
+	for it := range set {
+		names = append(names, it)
+	}
+	slices.Sort(names)
+	return evs, lines, names
 }
